@@ -1,0 +1,1 @@
+"""uvdose HTTP edge: app factory, blueprints, schemas and the grid-cell cache."""

@@ -1,0 +1,5 @@
+"""Placeholder; its owner replaces it."""
+
+
+def init_app(app):
+    return None
