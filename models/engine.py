@@ -1,0 +1,280 @@
+"""The engine facade: per-record conditions in, UV quantities out.
+
+This is the one entry point the service uses for physics. It runs the pipeline
+
+    solar position ─► pressure, ozone, albedo, aerosol defaults ─► clear-sky spectrum
+    ─► clouds ─► receiver orientation ─► glazing/film ─► action-spectrum weighting
+
+on arrays of N records at once. Every optional input is ``NaN`` (or ``""`` for the
+surface type) when the client did not give it; the defaults applied here are the
+documented ones and the result says which values were used.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field, fields
+from functools import lru_cache
+from typing import Mapping, Sequence
+
+import numpy as np
+
+from models import MODEL_VERSION, action_spectra, clear_sky, optics, receivers, surfaces, uv_index
+from models.ozone_grids import OzoneResolver
+from models.solar_geometry import pressure_from_elevation_hpa, solar_position
+from models.spectral_grid import WAVELENGTH_NM
+
+DEFAULT_SPECTRA: tuple[str, ...] = ("erythema", "actinic_icnirp", "plant_damage")
+"""Spectra weighted when a request names none."""
+
+DEFAULT_SURFACE_ALBEDO = 0.05
+"""UV albedo used when neither an albedo nor a surface type is given: green vegetation
+and most soils reflect a few per cent of UV (WHO 2002 Practical Guide: grass, soil and
+water reflect less than 10 %); 0.05 is common practice, no source."""
+
+_BANDS = ("uvb", "uva")
+_FLOAT_FIELDS = (
+    "time_unix_s",
+    "latitude_deg",
+    "longitude_deg",
+    "elevation_m",
+    "pressure_hpa",
+    "ozone_du",
+    "aod_550",
+    "angstrom_exponent",
+    "single_scattering_albedo",
+    "asymmetry_factor",
+    "surface_albedo",
+    "cloud_modification_factor",
+    "tilt_deg",
+    "receiver_azimuth_deg",
+    "sky_view_factor",
+)
+
+
+@dataclass(frozen=True)
+class Conditions:
+    """Inputs of N records, each field an array of shape (N,).
+
+    Times are Unix seconds (UTC); angles in degrees; elevation in metres above sea
+    level; pressure in hPa; ozone in Dobson units; aerosol optical depth at 550 nm;
+    albedo and cloud modification factor dimensionless. ``NaN`` means "not given".
+    """
+
+    time_unix_s: np.ndarray
+    latitude_deg: np.ndarray
+    longitude_deg: np.ndarray
+    elevation_m: np.ndarray
+    pressure_hpa: np.ndarray
+    ozone_du: np.ndarray
+    aod_550: np.ndarray
+    angstrom_exponent: np.ndarray
+    single_scattering_albedo: np.ndarray
+    asymmetry_factor: np.ndarray
+    surface_albedo: np.ndarray
+    cloud_modification_factor: np.ndarray
+    tilt_deg: np.ndarray
+    receiver_azimuth_deg: np.ndarray
+    sky_view_factor: np.ndarray
+    surface_type: np.ndarray = field(default=None)
+
+    @classmethod
+    def from_columns(cls, columns: Mapping[str, np.ndarray]) -> "Conditions":
+        """Build conditions from a dict of arrays; absent optional keys become NaN/""."""
+        n = len(columns["time_unix_s"])
+        values = {}
+        for name in _FLOAT_FIELDS:
+            column = columns.get(name)
+            values[name] = (
+                np.full(n, np.nan) if column is None else np.asarray(column, dtype=np.float64)
+            )
+        surface_type = columns.get("surface_type")
+        values["surface_type"] = (
+            np.full(n, "", dtype=object) if surface_type is None else np.asarray(surface_type, dtype=object)
+        )
+        for name, column in values.items():
+            if column.shape != (n,):
+                raise ValueError(f"column {name!r} has shape {column.shape}, expected ({n},)")
+        return cls(**values)
+
+    def __len__(self) -> int:
+        return len(self.time_unix_s)
+
+
+@dataclass
+class EngineResult:
+    """Outputs of N records, each an array of shape (N,) unless stated.
+
+    ``effective_w_m2`` maps action-spectrum name to weighted irradiance (W m⁻²) on the
+    receiver, after clouds and any filter. ``uv_index`` is always for a horizontal,
+    unfiltered surface under the record's clouds. ``spectrum_w_m2_nm`` is (N, W) on
+    ``wavelength_nm`` when asked for, else ``None``.
+    """
+
+    solar_zenith_deg: np.ndarray
+    solar_azimuth_deg: np.ndarray
+    earth_sun_distance_au: np.ndarray
+    uv_index: np.ndarray
+    exposure_category: np.ndarray
+    effective_w_m2: dict[str, np.ndarray]
+    uvb_w_m2: np.ndarray
+    uva_w_m2: np.ndarray
+    ozone_du: np.ndarray
+    ozone_source: np.ndarray
+    pressure_hpa: np.ndarray
+    surface_albedo: np.ndarray
+    cloud_modification_factor: np.ndarray
+    spectrum_w_m2_nm: np.ndarray | None = None
+    wavelength_nm: np.ndarray = field(default_factory=lambda: WAVELENGTH_NM)
+    model_version: str = MODEL_VERSION
+
+    _EFFECTIVE_PREFIX = "effective_w_m2."
+    _SPECTRUM_PREFIX = "spectrum_w_m2_nm."
+
+    def as_columns(self) -> dict[str, np.ndarray]:
+        """Flatten to a dict of (N,) arrays (effective values as ``effective_w_m2.<name>``,
+        spectrum columns as ``spectrum_w_m2_nm.<index>``)."""
+        columns: dict[str, np.ndarray] = {}
+        for f in fields(self):
+            value = getattr(self, f.name)
+            if f.name == "effective_w_m2":
+                for name, column in value.items():
+                    columns[self._EFFECTIVE_PREFIX + name] = column
+            elif f.name == "spectrum_w_m2_nm":
+                if value is not None:
+                    for index in range(value.shape[1]):
+                        columns[f"{self._SPECTRUM_PREFIX}{index}"] = value[:, index]
+            elif f.name not in ("wavelength_nm", "model_version"):
+                columns[f.name] = value
+        return columns
+
+    @classmethod
+    def from_columns(cls, columns: Mapping[str, np.ndarray]) -> "EngineResult":
+        """Inverse of :meth:`as_columns`."""
+        effective = {
+            key[len(cls._EFFECTIVE_PREFIX):]: value
+            for key, value in columns.items()
+            if key.startswith(cls._EFFECTIVE_PREFIX)
+        }
+        spectrum_keys = sorted(
+            (key for key in columns if key.startswith(cls._SPECTRUM_PREFIX)),
+            key=lambda key: int(key[len(cls._SPECTRUM_PREFIX):]),
+        )
+        spectrum = np.column_stack([columns[key] for key in spectrum_keys]) if spectrum_keys else None
+        plain = {
+            f.name: columns[f.name]
+            for f in fields(cls)
+            if f.name not in ("effective_w_m2", "spectrum_w_m2_nm", "wavelength_nm", "model_version")
+        }
+        return cls(effective_w_m2=effective, spectrum_w_m2_nm=spectrum, **plain)
+
+
+@lru_cache(maxsize=1)
+def default_ozone_resolver() -> OzoneResolver:
+    """The resolver configured from the environment (operator grids, then climatology)."""
+    return OzoneResolver.from_environment()
+
+
+@lru_cache(maxsize=16)
+def _weights(names: tuple[str, ...]) -> np.ndarray:
+    return action_spectra.weight_matrix(names, WAVELENGTH_NM)
+
+
+def _given(values: np.ndarray, default: float | np.ndarray) -> np.ndarray:
+    return np.where(np.isnan(values), default, values)
+
+
+def _surface_albedo(conditions: Conditions) -> np.ndarray:
+    albedo = np.full(len(conditions), DEFAULT_SURFACE_ALBEDO)
+    typed = conditions.surface_type != ""
+    if typed.any():
+        albedo[typed] = surfaces.albedo_for(conditions.surface_type[typed])
+    return _given(conditions.surface_albedo, albedo)
+
+
+def compute(
+    conditions: Conditions,
+    spectra: Sequence[str] = DEFAULT_SPECTRA,
+    include_spectrum: bool = False,
+    transmittance: np.ndarray | None = None,
+    ozone_resolver: OzoneResolver | None = None,
+    method: str = "auto",
+) -> EngineResult:
+    """Compute UV quantities for N records.
+
+    Parameters
+    ----------
+    conditions : per-record inputs (see :class:`Conditions`).
+    spectra : action-spectrum names from ``models.action_spectra.ACTION_SPECTRA``.
+    include_spectrum : also return the spectral irradiance on the receiver (W m⁻² nm⁻¹).
+    transmittance : spectral transmittance of a glazing or film on ``WAVELENGTH_NM``,
+        shape (W,) or (N, W); ``None`` for an unobstructed receiver.
+    ozone_resolver : where ozone comes from when a record gives none; defaults to
+        :func:`default_ozone_resolver`.
+    method : clear-sky method, see :func:`models.clear_sky.spectral_irradiance`.
+    """
+    c = conditions
+    elevation_m = _given(c.elevation_m, 0.0)
+    pressure_hpa = _given(c.pressure_hpa, pressure_from_elevation_hpa(elevation_m))
+    sun = solar_position(c.time_unix_s, c.latitude_deg, c.longitude_deg, elevation_m, pressure_hpa)
+
+    resolver = ozone_resolver or default_ozone_resolver()
+    ozone_du, ozone_source = resolver.resolve(c.latitude_deg, c.longitude_deg, c.time_unix_s, c.ozone_du)
+    surface_albedo = _surface_albedo(c)
+
+    sky = clear_sky.spectral_irradiance(
+        sun.zenith_deg,
+        sun.earth_sun_distance_au,
+        ozone_du,
+        pressure_hpa,
+        surface_albedo,
+        _given(c.aod_550, optics.DEFAULT_AOD_550),
+        _given(c.angstrom_exponent, optics.DEFAULT_ANGSTROM_EXPONENT),
+        _given(c.single_scattering_albedo, optics.DEFAULT_SINGLE_SCATTERING_ALBEDO),
+        _given(c.asymmetry_factor, optics.DEFAULT_ASYMMETRY_FACTOR),
+        method=method,
+    )
+    # The cloud modification factor scales direct and diffuse alike (see models.clouds).
+    cmf = _given(c.cloud_modification_factor, 1.0)
+    direct = sky.direct_horizontal_w_m2_nm * cmf[:, None]
+    diffuse = sky.diffuse_horizontal_w_m2_nm * cmf[:, None]
+    horizontal = direct + diffuse
+
+    names = tuple(dict.fromkeys(("erythema", *spectra, *_BANDS)))
+    weights = _weights(names)
+    erythemal_horizontal = horizontal @ weights[:, 0]
+
+    tilt_deg = _given(c.tilt_deg, 0.0)
+    sky_view = _given(c.sky_view_factor, 1.0)
+    on_receiver = horizontal
+    if np.any(tilt_deg != 0.0) or np.any(sky_view != 1.0):
+        on_receiver = receivers.receiver_spectral_irradiance(
+            direct,
+            diffuse,
+            sun.zenith_deg,
+            sun.azimuth_deg,
+            tilt_deg,
+            _given(c.receiver_azimuth_deg, 180.0),
+            sky_view,
+            surface_albedo,
+        )
+    if transmittance is not None:
+        on_receiver = on_receiver * transmittance
+
+    effective = on_receiver @ weights
+    by_name = {name: effective[:, index] for index, name in enumerate(names)}
+    uvi = uv_index.uv_index(erythemal_horizontal)
+    return EngineResult(
+        solar_zenith_deg=sun.zenith_deg,
+        solar_azimuth_deg=sun.azimuth_deg,
+        earth_sun_distance_au=sun.earth_sun_distance_au,
+        uv_index=uvi,
+        exposure_category=uv_index.exposure_category(uvi),
+        effective_w_m2={name: by_name[name] for name in dict.fromkeys(spectra)},
+        uvb_w_m2=by_name["uvb"],
+        uva_w_m2=by_name["uva"],
+        ozone_du=ozone_du,
+        ozone_source=ozone_source,
+        pressure_hpa=pressure_hpa,
+        surface_albedo=surface_albedo,
+        cloud_modification_factor=cmf,
+        spectrum_w_m2_nm=on_receiver if include_spectrum else None,
+    )
