@@ -1,0 +1,230 @@
+"""Solar position, Earth–Sun distance and surface pressure from elevation.
+
+Arrays in, arrays out: one entry per record, shape ``(N,)``. Scalars broadcast.
+
+Solar position follows the NREL Solar Position Algorithm (SPA):
+    Reda, I. and Andreas, A. (2004). Solar position algorithm for solar radiation
+    applications. Solar Energy 76(5), 577–589. doi:10.1016/j.solener.2003.12.003
+(revised as NREL/TP-560-34302, 2008), through the numpy implementation in
+``pvlib.spa``. Pandas is kept off this path: the engine calls it for every batch.
+
+Time scale. ``time_unix_s`` is POSIX time (UTC, no leap seconds) and is taken as
+UT1; |UT1 − UTC| < 0.9 s, which moves the hour angle by at most 0.004°.
+ΔT = TT − UT1 defaults to the polynomial estimate for the record's year and month
+(Espenak & Meeus, *Five Millennium Canon of Solar Eclipses*, NASA/TP-2006-214141,
+as implemented by ``pvlib.spa.calculate_deltat``). SPA uses ΔT only for the Sun's
+ephemeris position, which moves about 1.1e-5° per second of time, so an error of
+several seconds in ΔT is immaterial here.
+
+Refraction. The zenith angle returned is the apparent (refraction-corrected)
+topocentric zenith using SPA's refraction formula (eq. 42 of Reda & Andreas, after
+Bennett), scaled by the record's pressure and temperature. As in SPA, refraction
+is applied only while the Sun's upper limb is above the horizon (true elevation
+≥ −(0.26667° + 0.5667°)); below that the geometric zenith is returned.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from pvlib import spa
+
+__all__ = [
+    "SolarPosition",
+    "solar_position",
+    "pressure_from_elevation_hpa",
+    "STANDARD_SEA_LEVEL_PRESSURE_HPA",
+]
+
+# SPA's refraction at the horizon and the Sun's apparent semi-diameter, degrees
+# (Reda & Andreas 2004, eq. 42 and the text after it).
+_HORIZON_REFRACTION_DEG = 0.5667
+
+# U.S. Standard Atmosphere, 1976 (NOAA/NASA/USAF, NOAA-S/T 76-1562), Table 4 and
+# section 1.3: sea-level values, gas constant, molar mass and the first two layers.
+STANDARD_SEA_LEVEL_PRESSURE_HPA = 1013.25
+_SEA_LEVEL_TEMPERATURE_K = 288.15
+_G0_M_S2 = 9.80665
+_MOLAR_MASS_KG_MOL = 0.0289644
+_GAS_CONSTANT_J_MOL_K = 8.31432
+_EARTH_RADIUS_FOR_GEOPOTENTIAL_M = 6356766.0
+_TROPOPAUSE_GEOPOTENTIAL_M = 11000.0
+_TROPOSPHERE_LAPSE_K_M = 0.0065
+
+ELEVATION_RANGE_M = (-1000.0, 20000.0)
+"""Elevations accepted by :func:`pressure_from_elevation_hpa` (metres above mean
+sea level): the two lowest layers of the 1976 standard atmosphere plus a margin
+below sea level for depressions such as the Dead Sea shore (−430 m)."""
+
+
+@dataclass(frozen=True)
+class SolarPosition:
+    """Topocentric solar position for N records.
+
+    zenith_deg: apparent (refraction-corrected) zenith angle, degrees, (N,).
+    azimuth_deg: azimuth clockwise from geographic north, 0–360°, (N,).
+    earth_sun_distance_au: Earth–Sun distance, astronomical units, (N,);
+        the SPA heliocentric radius vector R (Reda & Andreas 2004, eq. 8–9,
+        from the VSOP87 periodic terms).
+    """
+
+    zenith_deg: np.ndarray
+    azimuth_deg: np.ndarray
+    earth_sun_distance_au: np.ndarray
+
+    @property
+    def cos_zenith(self) -> np.ndarray:
+        """Cosine of the apparent zenith angle (negative with the Sun below the horizon)."""
+        return np.cos(np.radians(self.zenith_deg))
+
+
+def _out_of_range_message(field: str, values: np.ndarray, bad: np.ndarray, allowed: str) -> str:
+    index = np.flatnonzero(bad)
+    shown = ", ".join(f"record {i}: {field}={float(values[i]):g}" for i in index[:5])
+    more = f" and {index.size - 5} more" if index.size > 5 else ""
+    return f"{field} must be {allowed}; {shown}{more}"
+
+
+def _checked(field: str, values, low: float, high: float) -> np.ndarray:
+    array = np.asarray(values, dtype=float)
+    bad = ~np.isfinite(array) | (array < low) | (array > high)
+    if np.any(bad):
+        flat = np.atleast_1d(array)
+        raise ValueError(_out_of_range_message(field, flat, np.atleast_1d(bad),
+                                               f"a finite number in [{low:g}, {high:g}]"))
+    return array
+
+
+def _year_and_month(time_unix_s: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Calendar year and month (UTC) of POSIX times, without pandas."""
+    seconds = np.floor(time_unix_s).astype("int64").astype("datetime64[s]")
+    months_since_1970 = seconds.astype("datetime64[M]").astype("int64")
+    year = 1970 + months_since_1970 // 12
+    month = months_since_1970 % 12 + 1
+    return year.astype(float), month.astype(float)
+
+
+def _geocentric_sun(t: np.ndarray, delta_t: np.ndarray):
+    """Apparent sidereal time, geocentric right ascension and declination (degrees)
+    and heliocentric radius (AU): Reda & Andreas (2004) steps 3.1–3.9 via pvlib.spa."""
+    jd = spa.julian_day(t)
+    jde = spa.julian_ephemeris_day(jd, delta_t)
+    jc = spa.julian_century(jd)
+    jce = spa.julian_ephemeris_century(jde)
+    jme = spa.julian_ephemeris_millennium(jce)
+    radius_au = spa.heliocentric_radius_vector(jme)
+    theta = spa.geocentric_longitude(spa.heliocentric_longitude(jme))
+    beta = spa.geocentric_latitude(spa.heliocentric_latitude(jme))
+    x0 = spa.mean_elongation(jce)
+    x1 = spa.mean_anomaly_sun(jce)
+    x2 = spa.mean_anomaly_moon(jce)
+    x3 = spa.moon_argument_latitude(jce)
+    x4 = spa.moon_ascending_longitude(jce)
+    nutation = np.empty((2, t.size))
+    spa.longitude_obliquity_nutation(jce, x0, x1, x2, x3, x4, nutation)
+    delta_psi, delta_epsilon = nutation
+    epsilon = spa.true_ecliptic_obliquity(spa.mean_ecliptic_obliquity(jme), delta_epsilon)
+    lamd = spa.apparent_sun_longitude(theta, delta_psi, spa.aberration_correction(radius_au))
+    sidereal = spa.apparent_sidereal_time(spa.mean_sidereal_time(jd, jc), delta_psi, epsilon)
+    alpha = spa.geocentric_sun_right_ascension(lamd, epsilon, beta)
+    delta = spa.geocentric_sun_declination(lamd, epsilon, beta)
+    return sidereal, alpha, delta, radius_au
+
+
+def solar_position(
+    time_unix_s,
+    latitude_deg,
+    longitude_deg,
+    elevation_m=0.0,
+    pressure_hpa=1013.25,
+    temperature_c=12.0,
+    delta_t_s=None,
+) -> SolarPosition:
+    """Apparent solar zenith, azimuth and Earth–Sun distance by the NREL SPA.
+
+    Parameters (arrays broadcast to a common shape (N,); scalars allowed):
+        time_unix_s: POSIX seconds, UTC.
+        latitude_deg: geodetic latitude, −90…90, north positive.
+        longitude_deg: longitude, −180…180, east positive.
+        elevation_m: observer height above mean sea level, metres (parallax).
+        pressure_hpa: local air pressure for refraction, hPa (> 0, ≤ 1200).
+        temperature_c: local air temperature for refraction, °C (−90…60).
+        delta_t_s: ΔT = TT − UT1 in seconds; ``None`` → the Espenak & Meeus
+            polynomial for each record's year and month (see the module notes).
+
+    Method: Reda & Andreas (2004), Solar Energy 76, 577–589, via ``pvlib.spa``.
+    Stated SPA uncertainty ±0.0003° for years −2000…6000.
+
+    Raises ValueError naming the record and field for non-finite or out-of-range input.
+    """
+    time_unix_s = _checked("time_unix_s", time_unix_s, -6.2e10, 2.5e11)
+    latitude_deg = _checked("latitude_deg", latitude_deg, -90.0, 90.0)
+    longitude_deg = _checked("longitude_deg", longitude_deg, -180.0, 180.0)
+    elevation_m = _checked("elevation_m", elevation_m, -1000.0, 1.0e5)
+    pressure_hpa = _checked("pressure_hpa", pressure_hpa, 0.0, 1200.0)
+    temperature_c = _checked("temperature_c", temperature_c, -90.0, 60.0)
+
+    arrays = np.broadcast_arrays(time_unix_s, latitude_deg, longitude_deg,
+                                 elevation_m, pressure_hpa, temperature_c)
+    t, lat, lon, elev, pres, temp = (np.ascontiguousarray(np.atleast_1d(a), dtype=float)
+                                     for a in arrays)
+    # Everything up to the geocentric right ascension depends on time alone, and
+    # batches often share times (a field grid at one instant, hourly steps), so the
+    # periodic-term sums run once per distinct (time, ΔT) pair. Exact, not approximate.
+    if delta_t_s is None or np.ndim(delta_t_s) == 0:
+        unique_t, inverse = np.unique(t, return_inverse=True)
+        if delta_t_s is None:
+            unique_delta_t = spa.calculate_deltat(*_year_and_month(unique_t))
+        else:
+            unique_delta_t = np.full(unique_t.shape,
+                                     float(_checked("delta_t_s", delta_t_s, -1.0e4, 1.0e4)))
+    else:
+        delta_t = np.broadcast_to(_checked("delta_t_s", delta_t_s, -1.0e4, 1.0e4), t.shape)
+        keys, inverse = np.unique(np.column_stack([t, delta_t]), axis=0, return_inverse=True)
+        unique_t, unique_delta_t = keys[:, 0], keys[:, 1]
+    inverse = inverse.reshape(-1)
+    sidereal, alpha, delta, radius_au = (
+        quantity[inverse] for quantity in _geocentric_sun(unique_t, unique_delta_t))
+
+    hour_angle = spa.local_hour_angle(sidereal, lon, alpha)
+    xi = spa.equatorial_horizontal_parallax(radius_au)
+    u = spa.uterm(lat)
+    x = spa.xterm(u, lat, elev)
+    y = spa.yterm(u, lat, elev)
+    delta_alpha = spa.parallax_sun_right_ascension(x, xi, hour_angle, delta)
+    delta_prime = spa.topocentric_sun_declination(delta, x, y, xi, delta_alpha, hour_angle)
+    hour_angle_prime = spa.topocentric_local_hour_angle(hour_angle, delta_alpha)
+    e0 = spa.topocentric_elevation_angle_without_atmosphere(lat, delta_prime, hour_angle_prime)
+    refraction = spa.atmospheric_refraction_correction(pres, temp, e0, _HORIZON_REFRACTION_DEG)
+    zenith = spa.topocentric_zenith_angle(spa.topocentric_elevation_angle(e0, refraction))
+    gamma = spa.topocentric_astronomers_azimuth(hour_angle_prime, delta_prime, lat)
+    azimuth = spa.topocentric_azimuth_angle(gamma)
+    return SolarPosition(zenith_deg=np.asarray(zenith, dtype=float),
+                         azimuth_deg=np.asarray(azimuth, dtype=float),
+                         earth_sun_distance_au=np.asarray(radius_au, dtype=float))
+
+
+def pressure_from_elevation_hpa(elevation_m) -> np.ndarray:
+    """Standard-atmosphere surface pressure (hPa) at a height above mean sea level (m).
+
+    U.S. Standard Atmosphere, 1976 (NOAA/NASA/USAF, NOAA-S/T 76-1562), identical to
+    the ICAO standard atmosphere below 32 km. The geometric height is converted to
+    geopotential height H = r0·z/(r0 + z) with r0 = 6 356 766 m (eq. 18), then the
+    hydrostatic barometric formula (eqs. 33a/33b) is applied in the troposphere
+    (lapse −6.5 K/km from 288.15 K, 1013.25 hPa) and in the isothermal layer
+    11–20 km (216.65 K). Heights outside ``ELEVATION_RANGE_M`` raise ValueError.
+    """
+    low, high = ELEVATION_RANGE_M
+    z = _checked("elevation_m", elevation_m, low, high)
+    h = _EARTH_RADIUS_FOR_GEOPOTENTIAL_M * z / (_EARTH_RADIUS_FOR_GEOPOTENTIAL_M + z)
+    exponent = _G0_M_S2 * _MOLAR_MASS_KG_MOL / (_GAS_CONSTANT_J_MOL_K * _TROPOSPHERE_LAPSE_K_M)
+    tropo_h = np.minimum(h, _TROPOPAUSE_GEOPOTENTIAL_M)
+    pressure = STANDARD_SEA_LEVEL_PRESSURE_HPA * (
+        1.0 - _TROPOSPHERE_LAPSE_K_M * tropo_h / _SEA_LEVEL_TEMPERATURE_K) ** exponent
+    tropopause_temperature_k = (_SEA_LEVEL_TEMPERATURE_K
+                                - _TROPOSPHERE_LAPSE_K_M * _TROPOPAUSE_GEOPOTENTIAL_M)
+    above = np.maximum(h - _TROPOPAUSE_GEOPOTENTIAL_M, 0.0)
+    pressure = pressure * np.exp(-_G0_M_S2 * _MOLAR_MASS_KG_MOL * above
+                                 / (_GAS_CONSTANT_J_MOL_K * tropopause_temperature_k))
+    return np.asarray(pressure, dtype=float)
