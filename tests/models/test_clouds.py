@@ -1,0 +1,70 @@
+"""Cloud modification factors against published relations and reference libraries."""
+import numpy as np
+import pytest
+from pvlib import atmosphere, clearsky
+
+from models import clouds
+
+
+def test_kasten_czeplak_overcast_and_clear():
+    # Kasten & Czeplak (1980), Solar Energy 24:177: G/G_clear = 1 − 0.75 (N/8)^3.4
+    # (from memory): 0 oktas → 1, 8 oktas → 0.25, 4 oktas → 1 − 0.75·0.5^3.4 = 0.929.
+    cmf = clouds.cmf_from_cloud_fraction(clouds.cloud_fraction_from_oktas([0, 4, 8]))
+    np.testing.assert_allclose(cmf, [1.0, 0.9290, 0.25], atol=5e-4)
+
+
+def test_cover_relation_agrees_with_epa_sky_category_factors():
+    # US EPA, "Calculating the UV Index" (SunWise), cloud transmission by sky category:
+    # scattered (cover 0.2–0.7) 0.89, broken (0.7–0.9) 0.73, overcast (>0.9) 0.31.
+    # A different, cruder source; agreement within 0.1 at mid-category cover.
+    cmf = clouds.cmf_from_cloud_fraction([0.45, 0.8, 1.0])
+    np.testing.assert_allclose(cmf, [0.89, 0.73, 0.31], atol=0.1)
+
+
+def test_cubic_coefficient_lies_in_thiel_range():
+    # Thiel et al. (1997), Photochem. Photobiol. 65:969: the overcast attenuation
+    # coefficient ranges from 0.4 (high cloud) to about 1.0 (cumulonimbus).
+    assert 0.4 <= 1.0 - clouds.cmf_from_cloud_fraction([1.0])[0] <= 1.0
+
+
+def test_clear_sky_ghi_agrees_with_ineichen():
+    # Reference library: pvlib's Ineichen–Perez clear sky (Linke turbidity 3, sea level);
+    # the two clear-sky models differ by their aerosol assumptions, so 10 %.
+    zenith = np.array([20.0, 40.0, 60.0])
+    airmass = atmosphere.get_absolute_airmass(atmosphere.get_relative_airmass(zenith))
+    ref = clearsky.ineichen(zenith, airmass, 3.0)["ghi"]
+    np.testing.assert_allclose(clouds.clear_sky_global_horizontal_w_m2(zenith), ref, rtol=0.10)
+
+
+def test_cmf_from_global_irradiance():
+    zenith = np.array([30.0, 30.0, 30.0, 88.0, 30.0])
+    clear = clouds.clear_sky_global_horizontal_w_m2(zenith)
+    measured = clear * np.array([1.0, 0.5, 1.2, 1.0, np.nan])
+    cmf = clouds.cmf_from_global_irradiance(measured, zenith)
+    np.testing.assert_allclose(cmf[:3], [1.0, 0.5, 1.2])
+    assert np.isnan(cmf[3]) and np.isnan(cmf[4])
+    np.testing.assert_allclose(
+        clouds.cmf_from_global_irradiance(measured[:2], zenith[:2], exponent=0.5),
+        [1.0, np.sqrt(0.5)])
+
+
+@pytest.mark.parametrize("call,message", [
+    (lambda: clouds.cmf_from_value([1.0, 1.6]), r"record 1: cloud_modification_factor"),
+    (lambda: clouds.cmf_from_value([-0.1]), r"record 0: cloud_modification_factor"),
+    (lambda: clouds.cloud_fraction_from_oktas([3, 9]), r"record 1: cloud_cover_oktas"),
+    (lambda: clouds.cloud_fraction_from_oktas([2.5]), r"record 0: cloud_cover_oktas"),
+    (lambda: clouds.cmf_from_cloud_fraction([1.2]), r"record 0: cloud_cover_fraction"),
+    (lambda: clouds.cmf_from_global_irradiance([-5.0], [30.0]), r"record 0: global_horizontal"),
+    (lambda: clouds.cmf_from_global_irradiance([3000.0], [30.0]), r"at most 1.5 times"),
+    (lambda: clouds.resolve_cmf([0.5, np.nan], [0.2, 0.3]), r"record 0: give only one"),
+])
+def test_bad_cloud_inputs_name_record_and_field(call, message):
+    with pytest.raises(ValueError, match=message):
+        call()
+
+
+def test_enhancement_above_one_is_accepted_and_resolve_mixes_sources():
+    cmf = clouds.resolve_cmf(cloud_modification_factor=[1.3, np.nan, np.nan],
+                             cloud_cover_oktas=[np.nan, 8, np.nan])
+    np.testing.assert_allclose(cmf[:2], [1.3, 0.25])
+    assert np.isnan(cmf[2])
