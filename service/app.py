@@ -1,21 +1,26 @@
 """Application factory for the uvdose service."""
 from __future__ import annotations
 
-import os
+from importlib import import_module
 from typing import Any
 
 from flask import Flask
 
-from service import auth, cache, metrics, request_log
+from service import auth, cache, metrics, problems, request_log
+from service.config import settings_from_environment
 
 
 def create_app(config: dict[str, Any] | None = None) -> Flask:
     """Build the Flask app. Settings come from the environment (see README), then ``config``."""
     app = Flask(__name__)
-    app.config.from_mapping(_settings_from_environment())
+    app.config.from_mapping(settings_from_environment())
     if config:
         app.config.from_mapping(config)
+    # Responses are built by the service itself; keep Flask's JSON compact and in key order.
+    app.json.compact = True
+    app.json.sort_keys = False
 
+    problems.init_app(app)
     request_log.init_app(app)
     auth.init_app(app)
     metrics.init_app(app)
@@ -24,12 +29,7 @@ def create_app(config: dict[str, Any] | None = None) -> Flask:
     return app
 
 
-def _settings_from_environment() -> dict[str, Any]:
-    env = os.environ
-    return {
-        "REDIS_URL": env.get("REDIS_URL") or None,
-    }
-
-
 def _register_blueprints(app: Flask) -> None:
-    pass
+    """One line per resource blueprint (imported here so each line stands alone)."""
+    app.register_blueprint(import_module("service.routes_health").blueprint)
+    app.register_blueprint(import_module("service.routes_docs").blueprint)

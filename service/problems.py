@@ -1,0 +1,129 @@
+"""Error responses as RFC 9457 problem details (``application/problem+json``).
+
+Every error the service returns, from a bad record to an unknown URL or an unexpected
+exception, goes through :func:`problem_response`. Problem types are URNs of our own
+(``urn:uvdose:problem:<slug>``); plain HTTP errors use ``about:blank`` as RFC 9457 §4.2.1
+recommends, with the HTTP reason phrase as title.
+"""
+from __future__ import annotations
+
+import json
+import logging
+from dataclasses import dataclass, field
+from typing import Any
+
+from flask import Flask, Response
+from werkzeug.exceptions import HTTPException
+
+PROBLEM_MEDIA_TYPE = "application/problem+json"
+TYPE_PREFIX = "urn:uvdose:problem:"
+
+log = logging.getLogger(__name__)
+
+
+@dataclass
+class FieldError:
+    """One thing wrong with one field of one record (or of the request envelope).
+
+    ``index`` is the 0-based record position and ``id`` the record's own id, both
+    ``None`` for request-wide fields such as ``spectra``.
+    """
+
+    field: str
+    reason: str
+    index: int | None = None
+    id: str | None = None
+
+    def as_dict(self) -> dict[str, Any]:
+        return {"index": self.index, "id": self.id, "field": self.field, "reason": self.reason}
+
+
+@dataclass
+class Problem(Exception):
+    """Raise anywhere in a request to answer with a problem document."""
+
+    status: int
+    slug: str
+    title: str
+    detail: str | None = None
+    errors: list[FieldError] = field(default_factory=list)
+    extensions: dict[str, Any] = field(default_factory=dict)
+
+    def __str__(self) -> str:
+        return f"{self.status} {self.title}: {self.detail or ''}"
+
+
+def problem_body(
+    status: int,
+    title: str,
+    detail: str | None = None,
+    type_uri: str = "about:blank",
+    **extensions: Any,
+) -> dict[str, Any]:
+    """The problem document as a dict (RFC 9457 §3.1 members, then our extensions)."""
+    body: dict[str, Any] = {"type": type_uri, "title": title, "status": status}
+    if detail:
+        body["detail"] = detail
+    body.update(extensions)
+    return body
+
+
+def problem_response(
+    status: int,
+    title: str,
+    detail: str | None = None,
+    type_uri: str = "about:blank",
+    headers: dict[str, str] | None = None,
+    **extensions: Any,
+) -> Response:
+    """A Flask response carrying a problem document."""
+    body = problem_body(status, title, detail, type_uri, **extensions)
+    response = Response(json.dumps(body), status=status, mimetype=PROBLEM_MEDIA_TYPE)
+    for name, value in (headers or {}).items():
+        response.headers[name] = value
+    return response
+
+
+def response_for(problem: Problem, max_errors: int | None = None) -> Response:
+    """Render a raised :class:`Problem`; at most ``max_errors`` field errors are listed."""
+    extensions = dict(problem.extensions)
+    if problem.errors:
+        listed = problem.errors if max_errors is None else problem.errors[:max_errors]
+        extensions["error_count"] = len(problem.errors)
+        extensions["errors"] = [error.as_dict() for error in listed]
+    return problem_response(
+        problem.status, problem.title, problem.detail, TYPE_PREFIX + problem.slug, **extensions
+    )
+
+
+def _http_exception(error: HTTPException) -> Response:
+    status = error.code or 500
+    headers = {}
+    allowed = getattr(error, "valid_methods", None)
+    if status == 405 and allowed:
+        headers["Allow"] = ", ".join(sorted(allowed))
+    detail = error.description if status != 500 else None
+    return problem_response(status, error.name, detail, headers=headers)
+
+
+def init_app(app: Flask) -> None:
+    """Answer every error with a problem document."""
+
+    @app.errorhandler(Problem)
+    def _problem(problem: Problem) -> Response:
+        return response_for(problem, app.config.get("UVDOSE_MAX_ERRORS_LISTED"))
+
+    @app.errorhandler(HTTPException)
+    def _http(error: HTTPException) -> Response:
+        return _http_exception(error)
+
+    @app.errorhandler(Exception)
+    def _unexpected(error: Exception) -> Response:
+        if not app.config.get("UVDOSE_HANDLE_ERRORS_AS_PROBLEMS", True):
+            raise error
+        log.exception("unexpected error while serving a request")
+        return problem_response(
+            500,
+            "Internal Server Error",
+            "The service failed while handling this request; the failure has been logged.",
+        )

@@ -1,0 +1,73 @@
+"""Liveness and readiness: ``GET /livez`` and ``GET /readyz``.
+
+``/livez`` answers as long as the process serves HTTP. ``/readyz`` answers 200 when the
+engine can compute (its modules import and its precomputed tables load) and 503 when it
+cannot. The cache is reported but never makes the service unready: without it the
+engine still computes every record, only slower.
+"""
+from __future__ import annotations
+
+import importlib
+import importlib.util
+import time
+from typing import Any
+
+from flask import Blueprint, current_app, jsonify
+
+from models import MODEL_VERSION
+
+blueprint = Blueprint("health", __name__)
+
+_TABLE_LOADERS = ("default_table", "load_default_table", "load_table")
+"""Functions of ``models.irradiance_table`` that load (and memoise) its table, tried in order."""
+
+
+@blueprint.get("/livez")
+def livez():
+    return jsonify({"status": "alive"})
+
+
+def engine_check() -> dict[str, Any]:
+    """Import the engine and load its precomputed irradiance table when there is one."""
+    started = time.perf_counter()
+    try:
+        importlib.import_module("models.engine")
+        table = "none"
+        if importlib.util.find_spec("models.irradiance_table") is not None:
+            module = importlib.import_module("models.irradiance_table")
+            loader = next((getattr(module, name) for name in _TABLE_LOADERS if hasattr(module, name)), None)
+            if loader is not None:
+                loader()
+                table = "loaded"
+            else:
+                table = "imported"
+    except Exception as error:  # readiness must report, not raise
+        return {"ok": False, "error": f"{type(error).__name__}: {error}"}
+    return {"ok": True, "irradiance_table": table,
+            "seconds": round(time.perf_counter() - started, 4)}
+
+
+def cache_check() -> dict[str, Any]:
+    """Name the cache backend and say whether it answers (``None``: it cannot be asked)."""
+    cache = current_app.extensions.get("uvdose_cache")
+    if cache is None:
+        return {"backend": "none", "answers": None}
+    backend = getattr(cache, "backend_name", None) or type(cache).__name__
+    ping = getattr(cache, "ping", None)
+    if ping is None:
+        return {"backend": str(backend), "answers": None}
+    try:
+        answers = bool(ping())
+    except Exception as error:
+        return {"backend": str(backend), "answers": False, "error": f"{type(error).__name__}: {error}"}
+    return {"backend": str(backend), "answers": answers}
+
+
+@blueprint.get("/readyz")
+def readyz():
+    engine = engine_check()
+    cache = cache_check()
+    ready = engine["ok"]
+    status = "ready" if ready and cache["answers"] is not False else ("degraded" if ready else "unready")
+    body = {"status": status, "model_version": MODEL_VERSION, "checks": {"engine": engine, "cache": cache}}
+    return jsonify(body), (200 if ready else 503)
