@@ -1,0 +1,186 @@
+"""Time integration: closed forms, additivity, sunrise/sunset against almanac codes,
+and (with the engine) the daily erythemal dose against the Madronich (2007) formula."""
+import datetime as dt
+
+import ephem
+import numpy as np
+import pytest
+from pvlib import spa
+
+from models import dose
+from models.solar_geometry import solar_position
+
+EQUINOX_2026 = 1773964800.0  # 2026-03-20 00:00 UTC
+DAY = 86400.0
+
+
+def constant_evaluator(rate):
+    def evaluate(columns):
+        n = len(columns["time_unix_s"])
+        return {"effective_w_m2.erythema": np.full(n, rate), "uv_index": np.full(n, 40 * rate)}
+    return evaluate
+
+
+def linear_evaluator(a, b, t0):
+    def evaluate(columns):
+        return {"effective_w_m2.erythema": a + b * (columns["time_unix_s"] - t0)}
+    return evaluate
+
+
+def madronich_evaluator(columns):
+    # Madronich (2007), Photochem. Photobiol. 83:1537: UVI ≈ 12.5 μ0^2.42 (Ω/300)^−1.23;
+    # erythemal irradiance = UVI / 40 W m⁻². Used as a smooth, realistic stand-in.
+    sun = solar_position(columns["time_unix_s"], columns["latitude_deg"], columns["longitude_deg"])
+    mu0 = np.clip(np.cos(np.radians(sun.zenith_deg)), 0.0, None)
+    ozone = np.where(np.isnan(columns["ozone_du"]), 300.0, columns["ozone_du"])
+    cmf = np.where(np.isnan(columns["cloud_modification_factor"]), 1.0,
+                   columns["cloud_modification_factor"])
+    uvi = 12.5 * mu0 ** 2.42 * (ozone / 300.0) ** -1.23 * cmf
+    return {"effective_w_m2.erythema": uvi / 40.0, "uv_index": uvi,
+            "ozone_source": np.where(np.isnan(columns["ozone_du"]), "climatology", "client")}
+
+
+def test_constant_rate_gives_rate_times_duration():
+    # Closed form: ∫ c dt = c (t1 − t0).
+    start = np.array([1000.0, 5000.0, 7777.7])
+    end = np.array([4600.0, 5000.0, 9999.9])
+    out = dose.window_doses({}, start, end, constant_evaluator(0.2), step_s=600)
+    np.testing.assert_allclose(out["dose_j_m2"]["erythema"], 0.2 * (end - start), rtol=1e-12)
+    np.testing.assert_allclose(out["final_rate_w_m2"]["erythema"], 0.2)
+    np.testing.assert_allclose(out["peak_uv_index"], 8.0)
+
+
+def test_linear_rate_gives_closed_form():
+    # Closed form: ∫ a + b(t − t0) dt over [s, e] = a(e − s) + b((e−t0)² − (s−t0)²)/2.
+    a, b, t0 = 0.05, 1e-5, 1000.0
+    start = np.array([1000.0, 1234.5])
+    end = np.array([8200.0, 20000.0])
+    out = dose.window_doses({}, start, end, linear_evaluator(a, b, t0), step_s=300)
+    exact = a * (end - start) + b * ((end - t0) ** 2 - (start - t0) ** 2) / 2
+    np.testing.assert_allclose(out["dose_j_m2"]["erythema"], exact, rtol=1e-12)
+
+
+def test_dose_is_additive_over_split_windows():
+    place = {"latitude_deg": np.array([45.0] * 3), "longitude_deg": np.array([7.0] * 3),
+             "ozone_du": np.full(3, np.nan), "cloud_modification_factor": np.full(3, np.nan)}
+    t = EQUINOX_2026 + 8 * 3600.0
+    start = np.array([t, t, t + 3333.0])
+    end = np.array([t + 7200.0, t + 3333.0, t + 7200.0])
+    doses = dose.window_doses(place, start, end, madronich_evaluator, step_s=60)["dose_j_m2"]["erythema"]
+    assert doses[0] == pytest.approx(doses[1] + doses[2], rel=1e-4)
+
+
+def test_night_window_adds_nothing():
+    place = {"latitude_deg": np.array([45.0]), "longitude_deg": np.array([7.0]),
+             "ozone_du": np.array([np.nan]), "cloud_modification_factor": np.array([np.nan])}
+    out = dose.window_doses(place, [EQUINOX_2026], [EQUINOX_2026 + 3 * 3600.0], madronich_evaluator)
+    assert out["dose_j_m2"]["erythema"][0] == 0.0
+
+
+def test_window_errors():
+    with pytest.raises(ValueError, match="window 1: end must not precede start"):
+        dose.trapezoid_nodes([0.0, 100.0], [10.0, 50.0], 600)
+    with pytest.raises(ValueError, match="step_s must be between"):
+        dose.trapezoid_nodes([0.0], [10.0], 1.0)
+
+
+def test_nodes_include_edges_and_weights_sum_to_length():
+    nodes = dose.trapezoid_nodes([100.0, 1300.0], [1250.0, 1300.0], 600)
+    np.testing.assert_allclose(nodes.time_unix_s, [100.0, 600.0, 1200.0, 1250.0, 1300.0, 1300.0])
+    np.testing.assert_allclose(np.bincount(nodes.window, nodes.weight_s), [1150.0, 0.0])
+
+
+def _ephem_events(lat, lon, transit_unix_s):
+    # Reference library: PyEphem, sun centre at −50′ geometric (34′ refraction + 16′
+    # semi-diameter folded into the horizon, no extra refraction), same as A.2's −0.8333°.
+    obs = ephem.Observer()
+    obs.lat, obs.lon, obs.elevation, obs.pressure, obs.horizon = str(lat), str(lon), 0, 0, "-0:50"
+    obs.date = dt.datetime.fromtimestamp(transit_unix_s, dt.UTC).replace(tzinfo=None)
+
+    def unix(d):
+        return ephem.Date(d).datetime().replace(tzinfo=dt.UTC).timestamp()
+
+    return (unix(obs.previous_rising(ephem.Sun(), use_center=True)),
+            unix(obs.next_setting(ephem.Sun(), use_center=True)))
+
+
+def test_sunrise_sunset_within_a_minute_of_pyephem():
+    days = EQUINOX_2026 + DAY * np.array([0.0, 92.0, 275.0])
+    lat = np.array([0.0, 45.0, -33.87, 60.17, -70.0, 35.0])
+    lon = np.array([0.0, 7.0, 151.21, -149.9, 179.0, -120.0])
+    sunrise, transit, sunset, state = dose.sunrise_transit_sunset(days, lat, lon)
+    checked = 0
+    for i in range(lat.size):
+        for j in range(days.size):
+            if state[i, j] != 0:
+                continue
+            rise, set_ = _ephem_events(lat[i], lon[i], transit[i, j])
+            assert abs(sunrise[i, j] - rise) < 60.0
+            assert abs(sunset[i, j] - set_) < 60.0
+            checked += 1
+    assert checked >= 15
+
+
+def test_sunrise_sunset_match_pvlib_spa_when_within_the_utc_day():
+    # Reference library: pvlib.spa.transit_sunrise_sunset (same A.2 algorithm); it
+    # re-uses the wrong day's ephemeris when an event falls outside the UTC date, so
+    # compare where both events fall inside it (longitudes near Greenwich).
+    days = EQUINOX_2026 + DAY * np.arange(0.0, 360.0, 30.0)
+    for lat, lon in ((0.0, 0.0), (51.48, 0.0), (-34.0, 18.5), (40.0, -8.0)):
+        rise, transit, set_, state = dose.sunrise_transit_sunset(days, [lat], [lon])
+        t_ref, r_ref, s_ref = spa.transit_sunrise_sunset(days, lat, lon, 69.0, 1)
+        np.testing.assert_allclose(rise[0], r_ref, atol=2.0)
+        np.testing.assert_allclose(set_[0], s_ref, atol=2.0)
+        np.testing.assert_allclose(transit[0], t_ref, atol=2.0)
+
+
+def test_polar_day_and_night_at_tromso():
+    # Almanac fact (from memory): Tromsø (69.65 N) has midnight sun around the June
+    # solstice and polar night around the December solstice.
+    june, december = 1781827200.0, 1797638400.0  # 2026-06-21, 2026-12-21 00:00 UTC
+    _, transit, sunset, state = dose.sunrise_transit_sunset([june, december], [69.65], [18.96])
+    np.testing.assert_array_equal(state[0], [1, -1])
+    assert sunset[0, 1] == transit[0, 1]
+
+
+def _field(n=1, lat=0.0, lon=0.0):
+    return {"latitude_deg": np.full(n, lat), "longitude_deg": np.full(n, lon)}
+
+
+def test_day_step_of_20_minutes_is_within_half_a_percent_of_1_minute():
+    # Measures the quadrature error of the default daily step on a realistic day shape.
+    days = EQUINOX_2026 + DAY * np.array([0.0, 90.0])
+    coarse = dose.field_season(_field(2, 45.0, 7.0) | {"latitude_deg": np.array([45.0, -20.0])},
+                               days, madronich_evaluator)
+    fine = dose.field_season(_field(2, 45.0, 7.0) | {"latitude_deg": np.array([45.0, -20.0])},
+                             days, madronich_evaluator, step_s=60)
+    np.testing.assert_allclose(coarse.daily_dose_j_m2["erythema"],
+                               fine.daily_dose_j_m2["erythema"], rtol=0.005)
+
+
+def test_season_sum_clouds_and_clear_sky_ratio():
+    days = EQUINOX_2026 + DAY * np.arange(3)
+    cmf = np.array([[1.0, 0.5, np.nan]])
+    ozone = np.array([[np.nan, np.nan, 360.0]])
+    season = dose.field_season(_field(1, 10.0, 20.0), days, madronich_evaluator,
+                               ozone_du=ozone, cloud_modification_factor=cmf,
+                               reference_ozone=lambda lat, lon, t: np.full(t.shape, 300.0))
+    daily = season.daily_dose_j_m2["erythema"][0]
+    np.testing.assert_allclose(season.season_dose_j_m2["erythema"][0], np.cumsum(daily))
+    ratio = season.ratio_to_clear_sky["erythema"][0]
+    # Day 1: CMF 0.5 → half the clear sky. Day 2: 360 DU against the 300 DU reference →
+    # (360/300)^−1.23 by construction of the stand-in.
+    np.testing.assert_allclose(ratio, [1.0, 0.5, 1.2 ** -1.23], rtol=2e-3)
+
+
+def test_per_day_inputs_must_match_fields_by_days():
+    with pytest.raises(ValueError, match=r"ozone_du must have one value per field and day"):
+        dose.field_season(_field(2), [EQUINOX_2026], madronich_evaluator, ozone_du=np.ones((1, 1)))
+
+
+def test_polar_night_dose_is_zero_without_evaluation():
+    season = dose.field_season(_field(1, 78.2, 15.6), [1797638400.0], madronich_evaluator,
+                               spectra=["erythema"])
+    assert season.daily_dose_j_m2["erythema"][0, 0] == 0.0
+    assert season.samples == 0
+    assert np.isnan(season.ratio_to_clear_sky["erythema"][0, 0])
