@@ -206,4 +206,5 @@ def beam_air_mass(solar_zenith_deg, layers: StandardLayers | None = None) -> np.
     radius_bottom = EARTH_RADIUS_KM + layers.bottom_km[None, :]
     chord = (np.sqrt(np.maximum(radius_top ** 2 - impact_sq, 0.0))
              - np.sqrt(np.maximum(radius_bottom ** 2 - impact_sq, 0.0)))
-    return chord / layers.thickness_km[None, :]
+    # A chord is never shorter than the vertical path; the floor only absorbs rounding.
+    return np.maximum(chord / layers.thickness_km[None, :], 1.0)
