@@ -201,6 +201,25 @@ def _band(wavelength_nm: np.ndarray) -> np.ndarray:
     return np.ones(np.shape(wavelength_nm))
 
 
+def _unweighted_band(name: str, band_nm: tuple[float, float],
+                     reference_levels: tuple[ReferenceLevel, ...] = ()) -> ActionSpectrum:
+    """A band spectrum: weight 1 inside the CIE band limits, 0 outside."""
+    low, high = band_nm
+    label = name.upper()
+    return ActionSpectrum(
+        name=name,
+        title=f"{label}, unweighted {low:g}–{high:g} nm",
+        source=f"CIE band limits (CIE S 017:2020 ILV, {label[:2]}-{label[2:]} "
+               f"{low:g}-{high:g} nm)",
+        normalisation_nm=low,
+        kind="band",
+        description=f"Unweighted irradiance in the {label} band, {low:g}–{high:g} nm.",
+        defined_nm=band_nm,
+        _function=_band,
+        reference_levels=reference_levels,
+    )
+
+
 # --- the registry -----------------------------------------------------------------
 
 _CIE_ERYTHEMA = ("CIE S 007/E:1998 Erythema reference action spectrum and standard erythema "
@@ -306,32 +325,13 @@ _SPECTRA = (
         defined_nm=(255.0, 330.0),
         _function=_log_linear("action_spectrum_cie_174.csv"),
     ),
-    ActionSpectrum(
-        name="uvb",
-        title="UVB, unweighted 280–315 nm",
-        source="CIE band limits (CIE S 017:2020 ILV, UV-B 280-315 nm)",
-        normalisation_nm=UVB_BAND_NM[0],
-        kind="band",
-        description="Unweighted irradiance in the UVB band, 280–315 nm.",
-        defined_nm=UVB_BAND_NM,
-        _function=_band,
-    ),
-    ActionSpectrum(
-        name="uva",
-        title="UVA, unweighted 315–400 nm",
-        source="CIE band limits (CIE S 017:2020 ILV, UV-A 315-400 nm)",
-        normalisation_nm=UVA_BAND_NM[0],
-        kind="band",
-        description="Unweighted irradiance in the UVA band, 315–400 nm.",
-        defined_nm=UVA_BAND_NM,
-        _function=_band,
-        reference_levels=(
-            ReferenceLevel("UVA limit for the unprotected eye", 10_000.0, "J m-2",
-                           "radiant exposure 315-400 nm for exposures under 1000 s; "
-                           "10 W m-2 for longer ones (from memory); local occupational "
-                           "rules take precedence", _ICNIRP_2004),
-        ),
-    ),
+    _unweighted_band("uvb", UVB_BAND_NM),
+    _unweighted_band("uva", UVA_BAND_NM, reference_levels=(
+        ReferenceLevel("UVA limit for the unprotected eye", 10_000.0, "J m-2",
+                       "radiant exposure 315-400 nm for exposures under 1000 s; "
+                       "10 W m-2 for longer ones (from memory); local occupational "
+                       "rules take precedence", _ICNIRP_2004),
+    )),
 )
 
 ACTION_SPECTRA: dict[str, ActionSpectrum] = {spectrum.name: spectrum for spectrum in _SPECTRA}
