@@ -6,6 +6,7 @@ and routes, ports, users and timeouts are compared with the Flask url_map of
 """
 from __future__ import annotations
 
+import functools
 import re
 import runpy
 import shlex
@@ -70,11 +71,12 @@ def exec_form(args: str) -> list[str]:
     return yaml.safe_load(args)  # a JSON array is valid YAML
 
 
-def k8s_documents() -> list[dict]:
+@functools.cache
+def k8s_documents() -> tuple[dict, ...]:
     docs = []
     for path in sorted(K8S.glob("*.yaml")):
         docs += [doc for doc in yaml.safe_load_all(path.read_text()) if doc]
-    return docs
+    return tuple(docs)
 
 
 def k8s_objects(kind: str) -> list[dict]:

@@ -4,7 +4,7 @@ import hmac
 import json
 
 import pytest
-from flask import jsonify
+from flask import g, jsonify
 
 from service import auth
 from service.app import create_app
@@ -91,8 +91,14 @@ def test_unknown_paths_need_a_key_too():
 
 @pytest.mark.parametrize("path", sorted(OPEN_PATHS))
 def test_probe_scrape_and_docs_paths_stay_open(path):
-    client = _app(UVDOSE_API_KEYS=ORCHARD_KEY).test_client()
-    assert client.get(path).status_code != 401
+    app = _app(UVDOSE_API_KEYS=ORCHARD_KEY)
+    assert path in {rule.rule for rule in app.url_map.iter_rules()}
+    # Only the before-request hooks run: the key check, not the (slow) readiness view.
+    with app.test_request_context(path):
+        assert app.preprocess_request() is None
+        assert g.uvdose_auth == "open"
+    with app.test_request_context("/v1/test-protected"):
+        assert app.preprocess_request().status_code == 401
 
 
 def test_key_file_with_plain_and_hashed_entries(tmp_path):

@@ -1,0 +1,123 @@
+"""A real gunicorn under deploy/gunicorn.conf.py: it serves, and SIGTERM drains in-flight work."""
+from __future__ import annotations
+
+import json
+import os
+import signal
+import subprocess
+import sys
+import threading
+import time
+import urllib.request
+from pathlib import Path
+
+import pytest
+
+from tests.service.conftest import free_loopback_port, wait_until_answers
+
+pytestmark = pytest.mark.gunicorn
+
+ROOT = Path(__file__).resolve().parents[2]
+CONFIG = ROOT / "deploy" / "gunicorn.conf.py"
+
+
+def _start(tmp_path: Path, app: str, extra_env: dict[str, str]):
+    port = free_loopback_port()
+    private_tmp = tmp_path / "tmp"
+    private_tmp.mkdir()
+    env = {k: v for k, v in os.environ.items()
+           if not k.startswith(("UVDOSE_", "PROMETHEUS_")) and k != "REDIS_URL"}
+    env.update({
+        "UVDOSE_BIND": f"127.0.0.1:{port}",
+        "UVDOSE_WORKERS": "1",
+        "UVDOSE_THREADS": "2",
+        "UVDOSE_GRACEFUL_TIMEOUT": "15",
+        "TMPDIR": str(private_tmp),
+        "PYTHONPATH": str(ROOT),
+        **extra_env,
+    })
+    stderr = (tmp_path / "stderr.log").open("wb")
+    stdout = (tmp_path / "stdout.log").open("wb")
+    process = subprocess.Popen(
+        [sys.executable, "-m", "gunicorn", "--config", str(CONFIG), app],
+        cwd=tmp_path, env=env, stdout=stdout, stderr=stderr,
+    )
+    base_url = f"http://127.0.0.1:{port}"
+    try:
+        wait_until_answers(base_url + "/livez", process)
+    except Exception:
+        process.kill()
+        process.wait()
+        raise
+    return process, base_url, private_tmp, (stdout, stderr)
+
+
+def _json_lines(path: Path) -> list[dict]:
+    return [json.loads(line) for line in path.read_text().splitlines() if line.strip()]
+
+
+def test_sigterm_lets_the_in_flight_request_finish_and_exits_cleanly(tmp_path):
+    marker = tmp_path / "hold-started"
+    process, base_url, private_tmp, logs = _start(
+        tmp_path, "tests.deploy.slow_app:create_app()", {"UVDOSE_TEST_HOLD_MARKER": str(marker)}
+    )
+    outcome: dict = {}
+
+    def hold():
+        started = time.monotonic()
+        request = urllib.request.Request(base_url + "/v1/test-hold?seconds=1.5", data=b"{}",
+                                         headers={"X-Request-ID": "drain-1"}, method="POST")
+        try:
+            with urllib.request.urlopen(request, timeout=30) as reply:
+                outcome.update(status=reply.status, body=json.loads(reply.read()),
+                               seconds=time.monotonic() - started)
+        except Exception as error:  # reported by the assertions below
+            outcome["error"] = repr(error)
+
+    try:
+        with urllib.request.urlopen(base_url + "/livez", timeout=5) as reply:
+            assert reply.status == 200 and reply.headers["X-Request-ID"]
+        client = threading.Thread(target=hold)
+        client.start()
+        deadline = time.monotonic() + 10
+        while not marker.exists():
+            assert time.monotonic() < deadline, "the held request never reached the app"
+            time.sleep(0.02)
+        process.send_signal(signal.SIGTERM)
+        client.join(timeout=30)
+        exit_code = process.wait(timeout=30)
+    finally:
+        if process.poll() is None:
+            process.kill()
+            process.wait()
+        for log in logs:
+            log.close()
+
+    assert "error" not in outcome, outcome.get("error")
+    assert outcome["status"] == 200
+    assert outcome["body"]["held"] == list(range(5000))
+    assert outcome["seconds"] >= 1.5
+    assert exit_code == 0
+
+    requests = _json_lines(tmp_path / "stdout.log")
+    (held,) = [line for line in requests if line["request_id"] == "drain-1"]
+    assert held["status"] == 200 and held["route"] == "/v1/test-hold"
+    server_lines = _json_lines(tmp_path / "stderr.log")  # every line must be JSON
+    messages = [line.get("message", "") for line in server_lines]
+    assert any("Handling signal: term" in m for m in messages)
+    assert any("Shutting down: Master" in m for m in messages)
+    # The metrics directory the config made for itself is gone with the server.
+    assert not list(private_tmp.glob("uvdose-metrics-*"))
+
+
+def test_a_broken_key_file_stops_the_server_at_start(tmp_path):
+    port = free_loopback_port()
+    env = {k: v for k, v in os.environ.items() if not k.startswith(("UVDOSE_", "PROMETHEUS_"))}
+    env.update({"UVDOSE_BIND": f"127.0.0.1:{port}", "UVDOSE_WORKERS": "1", "TMPDIR": str(tmp_path),
+                "UVDOSE_API_KEYS_FILE": str(tmp_path / "not-mounted"), "PYTHONPATH": str(ROOT)})
+    result = subprocess.run(
+        [sys.executable, "-m", "gunicorn", "--config", str(CONFIG), "service.app:create_app()"],
+        cwd=tmp_path, env=env, capture_output=True, timeout=60,
+    )
+    assert result.returncode != 0
+    assert b"UVDOSE_API_KEYS_FILE" in result.stderr
