@@ -98,3 +98,11 @@ def test_method_dispatch():
                                rtol=0.02)
     with pytest.raises(ValueError, match="unknown clear-sky method"):
         solve([20.0], method="fastest")
+
+
+def test_empty_batch_gives_empty_spectra():
+    empty = np.array([])
+    result = clear_sky.spectral_irradiance(empty, empty, empty, empty, empty, empty, empty,
+                                           empty, empty)
+    assert result.direct_horizontal_w_m2_nm.shape == (0, WAVELENGTH_NM.size)
+    assert result.diffuse_horizontal_w_m2_nm.shape == (0, WAVELENGTH_NM.size)

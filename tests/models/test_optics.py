@@ -39,8 +39,8 @@ def bodhaine_full_optical_depth(wavelength_nm, co2_ppm=360.0, latitude_deg=45.0)
 
 
 def test_rayleigh_fit_matches_bodhaine_full_formula():
-    # Source: Bodhaine et al. (1999): eq. (30) fits their full calculation within 0.01 %;
-    # allow 0.1 % for constants written from memory.
+    # Source: Bodhaine et al. (1999): eq. (30) is their fit to the full calculation
+    # (fit accuracy ~0.01 %, from memory); allow 0.1 % for constants written from memory.
     np.testing.assert_allclose(optics.rayleigh_optical_depth(WAVELENGTHS_NM),
                                bodhaine_full_optical_depth(WAVELENGTHS_NM), rtol=1e-3)
 
