@@ -5,8 +5,9 @@ Rayleigh scattering
     J. Atmos. Oceanic Technol. 16:1854–1861, their eq. (30): the fit to their full
     calculation for 1013.25 hPa, sea level, 45° latitude and 360 ppm CO₂, fitted over
     250–850 nm (used here for 280–400 nm; it reproduces our transcription of their full
-    formula within 0.003 %, see tests/models/test_optics.py). Scaled by p / 1013.25 hPa and spread
-    over the layers by the air column of the standard atmosphere (``models.atmosphere``).
+    formula within 0.003 %, see tests/models/test_optics.py). Scaled by p / 1013.25 hPa
+    and spread over the layers by the air column of the standard atmosphere
+    (``models.atmosphere``).
     The phase function's asymmetry factor is 0.
 
 Ozone absorption
