@@ -38,18 +38,20 @@ in latitude and longitude.
 from __future__ import annotations
 
 import csv
+import hashlib
 import os
 from dataclasses import dataclass
+from functools import lru_cache
 from pathlib import Path
 
 import numpy as np
 
 from models.ozone_climatology import climatological_ozone_du, day_of_year_from_unix
 
-PLAUSIBLE_OZONE_DU = (50.0, 800.0)
-"""Accepted range for any total-ozone column [DU]. Observed columns lie roughly in
-90-600 DU; the margin only catches unit mistakes (atm-cm, mol m-2). Common practice,
-no source."""
+PLAUSIBLE_OZONE_DU = (50.0, 700.0)
+"""Accepted range for any total-ozone column [DU], grid or client; the same range the
+API enforces on ``ozone_du``. Observed columns lie roughly in 90-600 DU; the margin
+only catches unit mistakes (atm-cm, mol m-2). Common practice, no source."""
 
 GRIDS_ENV_VAR = "UVDOSE_OZONE_GRIDS"
 """Environment variable: comma-separated paths of operator ozone grid files, tried in order."""
@@ -393,6 +395,23 @@ class OzoneResolver:
         paths = [part.strip() for part in text.split(",") if part.strip()]
         return cls.from_paths(paths)
 
+    @property
+    def fingerprint(self) -> str:
+        """Short digest of the loaded grids (names, nodes, values, order); "none" without grids.
+
+        Put it in a cache context: a result cached under one set of grids must not be
+        served after the operator changes them (the climatology is covered by MODEL_VERSION).
+        """
+        if not self.grids:
+            return "none"
+        digest = hashlib.sha256()
+        for grid in self.grids:
+            digest.update(grid.name.encode())
+            for array in (grid._periods.start_s, grid._periods.end_s, grid.latitude_deg,
+                          grid.longitude_deg, grid.ozone_du):
+                digest.update(np.ascontiguousarray(array, dtype=float).tobytes())
+        return digest.hexdigest()[:16]
+
     def describe(self) -> list[dict]:
         """Name and coverage of each loaded grid, in resolution order."""
         out = []
@@ -455,6 +474,12 @@ class OzoneResolver:
                 lat[pending], lon[pending], day_of_year_from_unix(t[pending])
             )
         return ozone, labels
+
+
+@lru_cache(maxsize=1)
+def default_resolver() -> OzoneResolver:
+    """The process-wide resolver from ``UVDOSE_OZONE_GRIDS``, loaded once (grids, then climatology)."""
+    return OzoneResolver.from_environment()
 
 
 def _require(bad: np.ndarray, message: str) -> None:

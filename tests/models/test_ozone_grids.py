@@ -165,7 +165,7 @@ def test_regional_grid_across_the_date_line_in_0_360_longitudes(tmp_path):
     [
         (lambda lines: lines[:1] + ["date,lat,lon,ozone"] + lines[2:], r"line 2: header must be date,latitude_deg"),
         (lambda lines: lines[:3] + ["2026-03-01,40.0,0.0,lots"] + lines[4:], r"line 4, column ozone_du: not a number"),
-        (lambda lines: lines[:3] + ["2026-03-01,40.0,0.0,0.32"] + lines[4:], r"line 4, column ozone_du: 0.32 is outside \[50, 800\]"),
+        (lambda lines: lines[:3] + ["2026-03-01,40.0,0.0,0.32"] + lines[4:], r"line 4, column ozone_du: 0.32 is outside \[50, 700\]"),
         (lambda lines: lines[:3] + ["2026-03-01,95.0,0.0,300"] + lines[4:], r"line 4, column latitude_deg"),
         (lambda lines: lines[:3] + ["2026-3-1,40.0,0.0,300"] + lines[4:], r"line 4, column date: expected YYYY-MM-DD"),
         (lambda lines: lines[:3] + ["2026-03-01,40.0,0.0"] + lines[4:], r"line 4: expected 4 columns, got 3"),
@@ -274,3 +274,14 @@ def test_from_environment(tmp_path):
         OzoneResolver.from_environment({GRIDS_ENV_VAR: str(tmp_path / "absent.csv")})
     described = resolver.describe()[0]
     assert described["start"] == "2026-03-01T00:00:00Z" and described["end"] == "2026-03-05T00:00:00Z"
+
+
+def test_fingerprint_changes_with_the_grids(tmp_path):
+    for folder in ("copy", "changed"):
+        (tmp_path / folder).mkdir()
+    a = _write_csv(tmp_path / "a.csv", DATES, LATS, LONS, _values(1))
+    same = _write_csv(tmp_path / "copy" / "a.csv", DATES, LATS, LONS, _values(1))
+    changed = _write_csv(tmp_path / "changed" / "a.csv", DATES, LATS, LONS, _values(2))
+    assert OzoneResolver().fingerprint == "none"
+    assert OzoneResolver.from_paths([a]).fingerprint == OzoneResolver.from_paths([same]).fingerprint
+    assert OzoneResolver.from_paths([a]).fingerprint != OzoneResolver.from_paths([changed]).fingerprint
