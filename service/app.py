@@ -33,3 +33,6 @@ def _register_blueprints(app: Flask) -> None:
     """One line per resource blueprint (imported here so each line stands alone)."""
     app.register_blueprint(import_module("service.routes_health").blueprint)
     app.register_blueprint(import_module("service.routes_docs").blueprint)
+    app.register_blueprint(import_module("service.routes_catalogue").blueprint)
+    app.register_blueprint(import_module("service.routes_irradiance").blueprint)
+    app.register_blueprint(import_module("service.routes_ozone").blueprint)

@@ -48,19 +48,24 @@ def engine_check() -> dict[str, Any]:
 
 
 def cache_check() -> dict[str, Any]:
-    """Name the cache backend and say whether it answers (``None``: it cannot be asked)."""
+    """Name the cache backend and say whether it answers (``None``: no backend to ask)."""
     cache = current_app.extensions.get("uvdose_cache")
     if cache is None:
         return {"backend": "none", "answers": None}
-    backend = getattr(cache, "backend_name", None) or type(cache).__name__
-    ping = getattr(cache, "ping", None)
-    if ping is None:
-        return {"backend": str(backend), "answers": None}
     try:
-        answers = bool(ping())
-    except Exception as error:
-        return {"backend": str(backend), "answers": False, "error": f"{type(error).__name__}: {error}"}
-    return {"backend": str(backend), "answers": answers}
+        if hasattr(cache, "status"):
+            state = dict(cache.status())
+        else:
+            state = {"backend": type(cache).__name__, "answers": bool(cache.ping())}
+    except Exception as error:  # readiness must report, not raise
+        return {"backend": str(getattr(cache, "backend", type(cache).__name__)), "answers": False,
+                "error": f"{type(error).__name__}: {error}"}
+    state["backend"] = str(state.get("backend", type(cache).__name__))
+    if state["backend"] == "off":
+        state["answers"] = None
+    else:
+        state["answers"] = bool(state.get("answers"))
+    return state
 
 
 @blueprint.get("/readyz")

@@ -25,6 +25,9 @@ from openapi_core.contrib.werkzeug import WerkzeugOpenAPIRequest, WerkzeugOpenAP
 from openapi_core.templating.paths.exceptions import OperationNotFound, PathNotFound
 from openapi_schema_validator import OAS31Validator
 
+from werkzeug.test import EnvironBuilder
+from werkzeug.wrappers import Request
+
 from service.app import create_app
 
 REPO = Path(__file__).resolve().parents[2]
@@ -66,6 +69,13 @@ def _problem_validator(spec: dict) -> OAS31Validator:
     return OAS31Validator(schema)
 
 
+def _bodiless_copy(request: Request) -> Request:
+    # The app has read the body already; response checks need only method, path and query.
+    headers = [(k, v) for k, v in request.headers.items() if k.lower() != "content-length"]
+    return Request(EnvironBuilder(path=request.path, method=request.method,
+                                  query_string=request.query_string, headers=headers).get_environ())
+
+
 class ContractError(AssertionError):
     """A response the OpenAPI document does not allow."""
 
@@ -82,7 +92,7 @@ class ContractClient(FlaskClient):
         return response
 
     def check(self, response) -> None:
-        request = WerkzeugOpenAPIRequest(response.request)
+        request = WerkzeugOpenAPIRequest(_bodiless_copy(response.request))
         try:
             self.checker.validate_response(request, WerkzeugOpenAPIResponse(response))
         except (PathNotFound, OperationNotFound):

@@ -31,9 +31,9 @@ def test_readyz_is_503_when_the_engine_cannot_load(client, monkeypatch):
 
 
 class _SilentCache:
-    backend_name = "redis"
+    backend = "redis"
 
-    def ping(self):
+    def status(self):
         raise ConnectionError("connection refused")
 
 

@@ -1,0 +1,185 @@
+"""``POST /v1/irradiance``: instantaneous UV quantities for a batch of records.
+
+Request → :mod:`service.batch_io` (schema declarations below, column checks) → arrays →
+:func:`models.engine.compute` (through the grid-cell cache when one is attached) →
+arrays → JSON rows, JSON columns or CSV.
+"""
+from __future__ import annotations
+
+from typing import Any, Callable, Mapping
+
+import numpy as np
+from flask import Blueprint, Response, current_app, request
+from marshmallow import ValidationError, fields, validate, validates
+
+from models import MODEL_VERSION
+from service import metrics
+from service.batch_io import (
+    CSV_MEDIA_TYPE,
+    ConditionsRecordSchema,
+    OneOfRegistry,
+    OptionsSchema,
+    csv_response,
+    json_response,
+    negotiate,
+    read_batch,
+    rows_from_columns,
+)
+
+CAUTION = (
+    "Estimates for planning, computed from a model atmosphere: not a measurement, and not "
+    "medical or occupational-health advice. Real exposure depends on shade, posture, "
+    "reflections, clothing and local weather. Defer to local regulations and licensed practice."
+)
+"""The caution every response carries (see README, "Cautions")."""
+
+ROUTE = "/v1/irradiance"
+
+blueprint = Blueprint("irradiance", __name__)
+
+
+def _spectrum_names():
+    from models.action_spectra import ACTION_SPECTRA
+
+    return ACTION_SPECTRA.keys()
+
+
+def default_spectra() -> list[str]:
+    from models.engine import DEFAULT_SPECTRA
+
+    return list(DEFAULT_SPECTRA)
+
+
+class StrictBoolean(fields.Boolean):
+    """``true`` or ``false`` only (no 1, "yes" or "on")."""
+
+    default_error_messages = {"invalid": "must be true or false"}
+
+    def _deserialize(self, value, attr, data, **kwargs):
+        if not isinstance(value, bool):
+            raise self.make_error("invalid")
+        return value
+
+
+class IrradianceRecordSchema(ConditionsRecordSchema):
+    """One record of ``POST /v1/irradiance``: the shared conditions fields, nothing more."""
+
+
+class IrradianceOptionsSchema(OptionsSchema):
+    """Request-wide options of ``POST /v1/irradiance``."""
+
+    spectra = fields.List(
+        fields.String(validate=OneOfRegistry(_spectrum_names, "action spectrum"),
+                      error_messages={"invalid": "must be a string"}),
+        validate=validate.Length(min=1, max=8, error="must name between {min} and {max} spectra"),
+        error_messages={"invalid": "must be an array of spectrum names"},
+    )
+    include_spectrum = StrictBoolean(load_default=False)
+
+    @validates("spectra")
+    def _distinct(self, value: list[str], **kwargs: Any) -> None:
+        if len(set(value)) != len(value):
+            raise ValidationError("names a spectrum twice")
+
+
+_RECORDS = IrradianceRecordSchema()
+_OPTIONS = IrradianceOptionsSchema()
+
+_SCALAR_OUTPUTS = (
+    # (wire name, engine column)
+    ("solar_zenith_deg", "solar_zenith_deg"),
+    ("solar_azimuth_deg", "solar_azimuth_deg"),
+    ("uv_index", "uv_index"),
+    ("exposure_category", "exposure_category"),
+)
+_USED_OUTPUTS = (
+    ("uvb_w_m2", "uvb_w_m2"),
+    ("uva_w_m2", "uva_w_m2"),
+    ("ozone_du", "ozone_du"),
+    ("ozone_source", "ozone_source"),
+    ("pressure_hpa", "pressure_hpa"),
+    ("surface_albedo", "surface_albedo"),
+    ("cloud_factor", "cloud_modification_factor"),
+)
+
+
+def engine_call(spectra: list[str], include_spectrum: bool) -> Callable[[Mapping[str, np.ndarray]], dict]:
+    """The engine on a dict of input columns, returning result columns (what the cache stores)."""
+    from models import engine
+
+    def compute(columns: Mapping[str, np.ndarray]) -> dict[str, np.ndarray]:
+        conditions = engine.Conditions.from_columns(columns)
+        return engine.compute(conditions, spectra=spectra, include_spectrum=include_spectrum).as_columns()
+
+    return compute
+
+
+def compute_through_cache(columns: Mapping[str, np.ndarray], compute, context: str) -> dict[str, np.ndarray]:
+    """Run ``compute`` through the app's grid-cell cache when one is attached."""
+    cache = current_app.extensions.get("uvdose_cache")
+    if cache is None:
+        return compute(columns)
+    return cache.compute_through(columns, compute, context)
+
+
+def result_columns(result: Mapping[str, np.ndarray], ids: np.ndarray, spectra: list[str]) -> dict[str, list]:
+    """Flat output columns as Python lists: id, scalars, ``effective_w_m2.<name>``, used values."""
+    out: dict[str, list] = {"id": ids.tolist()}
+    for wire, column in _SCALAR_OUTPUTS:
+        out[wire] = np.asarray(result[column]).tolist()
+    for name in spectra:
+        out[f"effective_w_m2.{name}"] = np.asarray(result[f"effective_w_m2.{name}"]).tolist()
+    for wire, column in _USED_OUTPUTS:
+        out[wire] = np.asarray(result[column]).tolist()
+    return out
+
+
+def spectrum_matrix(result: Mapping[str, np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
+    """(wavelength_nm (W,), spectral irradiance (N, W)) from result columns."""
+    from models.engine import EngineResult
+
+    full = EngineResult.from_columns(result)
+    return np.asarray(full.wavelength_nm, dtype=np.float64), full.spectrum_w_m2_nm
+
+
+@blueprint.post(ROUTE)
+def irradiance() -> Response:
+    media_type = negotiate(request)
+    batch_request = read_batch(request, record_schema=_RECORDS, options_schema=_OPTIONS,
+                               max_records=current_app.config["UVDOSE_MAX_RECORDS"])
+    batch, options = batch_request.batch, batch_request.options
+    spectra = options.get("spectra") or default_spectra()
+    include_spectrum = options["include_spectrum"]
+    context = f"irradiance;spectra={','.join(spectra)};spectrum={int(include_spectrum)}"
+    result = compute_through_cache(batch.columns, engine_call(spectra, include_spectrum), context)
+    columns = result_columns(result, batch.ids, spectra)
+    metrics.count_records(ROUTE, len(batch))
+    wavelength_nm = spectrum = None
+    if include_spectrum:
+        wavelength_nm, spectrum = spectrum_matrix(result)
+
+    if media_type == CSV_MEDIA_TYPE:
+        if spectrum is not None:
+            for index, nm in enumerate(wavelength_nm):
+                columns[f"spectrum_w_m2_nm.{nm:g}"] = spectrum[:, index].tolist()
+        return csv_response(columns)
+
+    body: dict[str, Any] = {"model_version": MODEL_VERSION, "caution": CAUTION, "spectra": spectra}
+    if wavelength_nm is not None:
+        body["wavelength_nm"] = wavelength_nm
+    if batch_request.layout == "columns":
+        if spectrum is not None:
+            columns["spectrum_w_m2_nm"] = spectrum
+        body["columns"] = columns
+        return json_response(body)
+    effective = {name: columns.pop(f"effective_w_m2.{name}") for name in spectra}
+    nested = rows_from_columns(effective)
+    rows: dict[str, Any] = {}
+    for wire, values in columns.items():
+        rows[wire] = values
+        if wire == "exposure_category":
+            rows["effective_w_m2"] = nested
+    if spectrum is not None:
+        rows["spectrum_w_m2_nm"] = spectrum.tolist()
+    body["results"] = rows_from_columns(rows)
+    return json_response(body)
