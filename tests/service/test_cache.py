@@ -135,14 +135,14 @@ def test_other_inputs_round_to_their_resolution_and_keep_not_given():
         "ozone_du": np.array([301.4, 301.6, np.nan]),
         "elevation_m": np.array([1234.0, 1236.0, np.nan]),
         "receiver_azimuth_deg": np.array([359.6, 0.4, 180.2]),
-        "cloud_modification_factor": np.array([0.3124, 0.3126, 1.0]),
+        "cloud_modification_factor": np.array([0.3124, 0.3132, 1.4999]),
         "surface_type": np.array(["snow_fresh", "", "grass"], dtype=object),
     }
     centres = grid.cell_centres(raw)
     np.testing.assert_allclose(centres["ozone_du"][:2], [301.0, 302.0])
     np.testing.assert_allclose(centres["elevation_m"][:2], [1230.0, 1240.0])
     np.testing.assert_allclose(centres["receiver_azimuth_deg"], [0.0, 0.0, 180.0])
-    np.testing.assert_allclose(centres["cloud_modification_factor"], [0.31, 0.315, 1.0])
+    np.testing.assert_array_equal(centres["cloud_modification_factor"], [0.312, 0.314, 1.5])
     assert np.isnan(centres["ozone_du"][2]) and np.isnan(centres["elevation_m"][2])
     assert list(centres["surface_type"]) == ["snow_fresh", "", "grass"]
     assert set(INPUT_RESOLUTIONS) <= {
