@@ -191,3 +191,29 @@ def test_no_key_ever_appears_in_a_log_line(capsys, caplog):
     everything = out.out + out.err + caplog.text
     for secret in (ORCHARD_KEY, DEPOT_KEY, _sha256_hex(ORCHARD_KEY), _sha256_hex(DEPOT_KEY)):
         assert secret not in everything
+
+
+def test_a_401_from_a_real_route_matches_openapi_yaml(contract_client_for):
+    # The contract client checks every response against openapi.yaml (tests/service/conftest.py).
+    client = contract_client_for(create_app({"TESTING": True, "UVDOSE_API_KEYS": ORCHARD_KEY}))
+    response = client.get("/v1/catalogue")
+    _assert_401(response, missing=True)
+    assert client.get("/v1/catalogue", headers={"X-API-Key": ORCHARD_KEY}).status_code == 200
+
+
+def test_openapi_yaml_states_where_keys_apply(openapi_spec):
+    schemes = openapi_spec["components"]["securitySchemes"]
+    assert schemes["ApiKey"] == {**schemes["ApiKey"], "type": "apiKey", "in": "header", "name": "X-API-Key"}
+    assert (schemes["BearerKey"]["type"], schemes["BearerKey"]["scheme"]) == ("http", "bearer")
+    assert {"ApiKey": []} in openapi_spec["security"] and {"BearerKey": []} in openapi_spec["security"]
+    app = create_app()
+    served = {rule.rule for rule in app.url_map.iter_rules()}
+    for path, item in openapi_spec["paths"].items():
+        for method, operation in item.items():
+            if path in OPEN_PATHS:
+                assert operation.get("security") == [], f"{method.upper()} {path} should be open"
+                assert "401" not in operation["responses"]
+            else:
+                assert "security" not in operation, f"{method.upper()} {path} overrides security"
+                assert "401" in operation["responses"], f"{method.upper()} {path} lacks a 401 response"
+    assert OPEN_PATHS <= served
