@@ -215,15 +215,25 @@ def climatological_ozone_du(latitude_deg, longitude_deg, day_of_year) -> np.ndar
     return climatology_table().interpolate(lat, lon, day)
 
 
+def _days_to_1_january(year: np.ndarray) -> np.ndarray:
+    """Days from 1970-01-01 to 1 January of ``year`` (proleptic Gregorian calendar)."""
+    before = year - 1
+    # 477 = leap days counted the same way up to 1969 (492 - 19 + 4)
+    return 365 * (year - 1970) + before // 4 - before // 100 + before // 400 - 477
+
+
 def day_of_year_from_unix(time_unix_s) -> np.ndarray:
     """Day of year on the climatology's 365-day axis for UTC instants (seconds since 1970).
 
     1.0 is 00:00 UTC on 1 January; the calendar year (365 or 366 days) is mapped
     linearly onto [1, 366) so that 31 December 24:00 meets 1 January of the next year.
+    Integer calendar arithmetic (Gregorian leap rule), no datetime objects.
     """
     t = np.asarray(time_unix_s, dtype=float)
-    whole = np.floor(t).astype("int64")
-    year = whole.astype("datetime64[s]").astype("datetime64[Y]")
-    start = year.astype("datetime64[s]").astype("int64").astype(float)
-    end = (year + 1).astype("datetime64[s]").astype("int64").astype(float)
+    days = np.floor(t / 86400.0).astype(np.int64)
+    year = 1970 + np.floor(days / 365.2425).astype(np.int64)
+    year -= days < _days_to_1_january(year)
+    year += days >= _days_to_1_january(year + 1)
+    start = _days_to_1_january(year) * 86400.0
+    end = _days_to_1_january(year + 1) * 86400.0
     return 1.0 + DAYS_PER_CLIMATOLOGICAL_YEAR * (t - start) / (end - start)

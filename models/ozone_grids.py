@@ -457,7 +457,8 @@ class OzoneResolver:
             )
 
         ozone = np.where(given, client, np.nan)
-        labels = np.full(lat.shape, SOURCE_CLIMATOLOGY, dtype=object)
+        labels = np.empty(lat.shape, dtype=object)
+        labels.fill(SOURCE_CLIMATOLOGY)  # much faster than np.full for object arrays
         labels[given] = SOURCE_CLIENT
         pending = ~given
         for grid in self.grids:

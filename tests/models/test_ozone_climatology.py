@@ -212,3 +212,16 @@ def test_day_of_year_from_unix():
     # leap year: 2024-12-31T12:00 is 365.5 days into a 366-day year
     assert day_of_year_from_unix(_unix("2024-12-31T12:00:00")) == pytest.approx(1 + 365 * 365.5 / 366)
     assert day_of_year_from_unix(_unix("1965-03-01T00:00:00")) == pytest.approx(60.0)
+
+
+def test_day_of_year_calendar_arithmetic_matches_numpy_datetimes():
+    # reference: numpy's datetime64 calendar, over 1900-2200 (covers 1900 and 2100,
+    # not leap years, and 2000, a leap year)
+    rng = np.random.default_rng(9)
+    t = np.floor(rng.uniform(_unix("1900-01-01T00:00:00"), _unix("2200-01-01T00:00:00"), 20000))
+    t = np.concatenate([t, [_unix(f"{y}-01-01T00:00:00") + d for y in (1900, 2000, 2100, 1970, 1969)
+                            for d in (-1.0, 0.0, 1.0)]])
+    year = t.astype("int64").astype("datetime64[s]").astype("datetime64[Y]")
+    start = year.astype("datetime64[s]").astype("int64").astype(float)
+    end = (year + 1).astype("datetime64[s]").astype("int64").astype(float)
+    assert np.allclose(day_of_year_from_unix(t), 1.0 + 365.0 * (t - start) / (end - start), rtol=0, atol=1e-9)
