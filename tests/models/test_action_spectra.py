@@ -121,13 +121,16 @@ def test_dna_damage_green_miller_form():
 
 
 def test_previtamin_d3_shape():
-    # CIE 174:2006: peak near 297-298 nm, zero above 330 nm. The tabulated values are
-    # from memory (see the table header); only the shape is checked here.
+    # Norval, Björn & de Gruijl (2010), Photochem. Photobiol. Sci. 9:11: the 1982
+    # action spectrum (the basis of CIE 174:2006) has its maximum at about 297 nm and
+    # "essentially no production above 315 nm"; CIE 174 extends it to 330 nm, zero above.
+    # The tabulated values themselves are from memory (see the table header).
     spectrum = ACTION_SPECTRA["previtamin_d3"]
     fine = np.arange(280.0, 331.0, 0.5)
     values = spectrum.weights(fine)
     assert 296.0 <= fine[np.argmax(values)] <= 299.0
     assert np.all(np.diff(values[fine >= 298.0]) < 0)
+    assert np.all(values[fine > 315.0] < 0.03)
     assert np.all(spectrum.weights(np.array([330.5, 350.0, 400.0])) == 0.0)
 
 
