@@ -36,3 +36,4 @@ def _register_blueprints(app: Flask) -> None:
     app.register_blueprint(import_module("service.routes_catalogue").blueprint)
     app.register_blueprint(import_module("service.routes_irradiance").blueprint)
     app.register_blueprint(import_module("service.routes_ozone").blueprint)
+    app.register_blueprint(import_module("service.routes_doses").blueprint)

@@ -184,3 +184,43 @@ def test_polar_night_dose_is_zero_without_evaluation():
     assert season.daily_dose_j_m2["erythema"][0, 0] == 0.0
     assert season.samples == 0
     assert np.isnan(season.ratio_to_clear_sky["erythema"][0, 0])
+
+
+# -- with the engine --------------------------------------------------------------------
+
+def _engine(spectra=("erythema",)):
+    return dose.engine_evaluator(spectra)
+
+
+def test_equator_equinox_daily_dose_matches_integrated_madronich():
+    # Madronich (2007), Photochem. Photobiol. 83:1537: clear-sky UVI ≈ 12.5 μ0^2.42
+    # (Ω/300)^−1.23 at sea level; integrated here over the same day at 1-min steps.
+    # The formula is an approximation; agreement within 10 % is what it supports.
+    field = {"latitude_deg": np.array([0.0]), "longitude_deg": np.array([0.0]),
+             "elevation_m": np.array([0.0])}
+    season = dose.field_season(field, [EQUINOX_2026], _engine(), ozone_du=np.array([[300.0]]),
+                               spectra=["erythema"])
+    t = np.arange(EQUINOX_2026, EQUINOX_2026 + DAY, 60.0)
+    mu0 = np.clip(np.cos(np.radians(solar_position(t, 0.0, 0.0).zenith_deg)), 0.0, None)
+    reference = np.trapezoid(12.5 * mu0 ** 2.42 / 40.0, t)
+    ours = season.daily_dose_j_m2["erythema"][0, 0]
+    assert ours == pytest.approx(reference, rel=0.10)
+    # About 60 SED on a clear equatorial equinox day (common practice: 50–70 SED).
+    assert 50.0 < ours / 100.0 < 70.0
+
+
+def test_vertical_receivers_get_a_field_study_fraction_of_horizontal():
+    # Field studies of vertical body sites (face, arms) report roughly 0.2–0.6 of the
+    # horizontal ambient erythemal dose over a day (from memory; e.g. the manikin and
+    # polysulphone-badge literature). Here: mean of four vertical azimuths, 45 N, June.
+    june = 1781827200.0  # 2026-06-21 00:00 UTC
+    azimuths = np.array([0.0, 90.0, 180.0, 270.0, 0.0])
+    tilt = np.array([90.0, 90.0, 90.0, 90.0, 0.0])
+    per_window = {"latitude_deg": np.full(5, 45.0), "longitude_deg": np.zeros(5),
+                  "tilt_deg": tilt, "receiver_azimuth_deg": azimuths, "ozone_du": np.full(5, 330.0)}
+    out = dose.window_doses(per_window, np.full(5, june + 4 * 3600.0), np.full(5, june + 20 * 3600.0),
+                            _engine(), step_s=1200, spectra=["erythema"])
+    d = out["dose_j_m2"]["erythema"]
+    fraction = d[:4].mean() / d[4]
+    assert 0.2 <= fraction <= 0.6
+    assert d[2] > d[0]  # a south-facing wall beats a north-facing one at 45 N

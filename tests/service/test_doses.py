@@ -1,0 +1,166 @@
+"""POST /v1/doses/windows, /fields, /routes: contract, errors that name the record and
+field, and the physics facts that survive the HTTP layer."""
+import json
+import urllib.request
+
+import numpy as np
+import pytest
+
+WINDOW = {"id": "crew-1", "start": "2026-06-10T08:00:00+02:00", "end": "2026-06-10T12:00:00+02:00",
+          "lat": 44.31, "lon": 4.62, "ozone_du": 320}
+
+
+def _post(client, path, body):
+    return client.post(path, data=json.dumps(body), content_type="application/json")
+
+
+def _problem_fields(response):
+    assert response.mimetype == "application/problem+json"
+    return [(e["index"], e["id"], e["field"]) for e in response.get_json()["errors"]]
+
+
+def test_window_dose_is_additive_and_carries_caution(client):
+    split = [dict(WINDOW, id="a", end="2026-06-10T10:00:00+02:00"),
+             dict(WINDOW, id="b", start="2026-06-10T10:00:00+02:00")]
+    r = _post(client, "/v1/doses/windows", {"records": [WINDOW, *split], "step_s": 1200})
+    assert r.status_code == 200
+    body = r.get_json()
+    assert "not medical" in body["caution"]
+    whole, a, b = (row["dose_j_m2"]["erythema"] for row in body["results"])
+    assert whole == pytest.approx(a + b, rel=1e-9)
+    row = body["results"][0]
+    # 1 SED = 100 J m⁻² (CIE S 007); skin type I MED 200 J m⁻² (planning figure).
+    assert row["standard_erythemal_doses"] == pytest.approx(whole / 100.0)
+    assert row["med_fraction"]["I"] == pytest.approx(whole / 200.0)
+    assert row["icnirp_limit_fraction"] == pytest.approx(row["dose_j_m2"]["actinic_icnirp"] / 30.0)
+
+
+def test_window_cloud_cover_lowers_the_dose(client):
+    clear = dict(WINDOW, id="clear")
+    overcast = dict(WINDOW, id="overcast", cloud_oktas=8)
+    body = _post(client, "/v1/doses/windows", {"records": [clear, overcast], "step_s": 1800}).get_json()
+    d_clear, d_overcast = (row["dose_j_m2"]["erythema"] for row in body["results"])
+    # Kasten & Czeplak (1980) form at 8 oktas: CMF 0.25.
+    assert d_overcast == pytest.approx(0.25 * d_clear, rel=1e-9)
+    assert body["results"][1]["cloud_factor"] == pytest.approx(0.25)
+
+
+@pytest.mark.parametrize("change,field", [
+    ({"end": "2026-06-10T07:00:00+02:00"}, "end"),
+    ({"cloud_oktas": 9}, "cloud_oktas"),
+    ({"cloud_oktas": 2.5}, "cloud_oktas"),
+    ({"tilt_deg": 200}, "tilt_deg"),
+    ({"start": "2026-06-10T08:00:00"}, "start"),
+])
+def test_window_errors_name_record_and_field(client, change, field):
+    r = _post(client, "/v1/doses/windows", {"records": [WINDOW, dict(WINDOW, id="bad", **change)]})
+    assert r.status_code == 422
+    assert (1, "bad", field) in _problem_fields(r)
+
+
+def test_window_two_cloud_inputs_rejected(client):
+    r = _post(client, "/v1/doses/windows", {"records": [dict(WINDOW, cloud_factor=0.5, cloud_cover=0.5)]})
+    assert r.status_code == 422
+    assert r.get_json()["errors"][0]["index"] == 0
+
+
+def test_unknown_glazing_and_bad_curve_are_option_errors(client):
+    r = _post(client, "/v1/doses/windows", {"records": [WINDOW], "glazing": "sunroof"})
+    assert r.status_code == 422 and (None, None, "glazing") in _problem_fields(r)
+    r = _post(client, "/v1/doses/windows", {"records": [WINDOW],
+                                            "transmittance_curve": {"wavelength_nm": [300, 400],
+                                                                    "transmittance": [0.0, 1.0]}})
+    assert r.status_code == 422 and "must cover 280–400 nm" in r.get_json()["errors"][0]["reason"]
+
+
+def test_field_season_sums_and_clear_sky_ratio(client):
+    body = {"records": [{"id": "north-plot", "lat": 52.1, "lon": 5.2, "surface_type": "grass"}],
+            "first_day": "2026-05-01", "last_day": "2026-05-03", "step_s": 1800,
+            "daily": {"field": [0], "day": ["2026-05-02"], "cloud_factor": [0.6]}}
+    r = _post(client, "/v1/doses/fields", body)
+    assert r.status_code == 200
+    days = r.get_json()["results"][0]["days"]
+    assert [d["day"] for d in days] == ["2026-05-01", "2026-05-02", "2026-05-03"]
+    daily = [d["dose_j_m2"]["plant_damage"] for d in days]
+    assert [d["season_total_j_m2"]["plant_damage"] for d in days] == pytest.approx(np.cumsum(daily))
+    assert [d["ratio_to_clear_sky"]["erythema"] for d in days] == pytest.approx([1.0, 0.6, 1.0])
+    # Almanac fact (from memory): early May at 52° N, sunrise about 04:10 UTC (06:10 CEST).
+    assert days[0]["sunrise"].startswith("2026-05-01T04:")
+
+
+def test_field_errors_name_the_daily_entry(client):
+    body = {"records": [{"lat": 52.1, "lon": 5.2}], "first_day": "2026-05-01", "last_day": "2026-05-02",
+            "daily": {"field": [3], "day": ["2026-06-01"]}}
+    r = _post(client, "/v1/doses/fields", body)
+    assert r.status_code == 422
+    fields = {f for _, _, f in _problem_fields(r)}
+    assert {"daily.field[0]", "daily.day[0]"} <= fields
+    r = _post(client, "/v1/doses/fields", {"records": [{"lat": 52.1, "lon": 5.2}],
+                                           "first_day": "2026-05-03", "last_day": "2026-05-01"})
+    assert r.status_code == 422 and (None, None, "last_day") in _problem_fields(r)
+
+
+DELIVERY = [
+    {"time": "2026-07-15T09:00:00Z", "lat": 48.10, "lon": 11.50},
+    {"time": "2026-07-15T09:40:00Z", "lat": 48.20, "lon": 11.60, "stop": True},
+    {"time": "2026-07-15T10:00:00Z", "lat": 48.20, "lon": 11.60},
+    {"time": "2026-07-15T10:45:00Z", "lat": 48.05, "lon": 11.75},
+]
+
+
+def test_route_points_and_geojson_agree_and_stops_are_reported(client):
+    feature = {"type": "Feature", "id": "van-geo",
+               "geometry": {"type": "LineString", "coordinates": [[p["lon"], p["lat"]] for p in DELIVERY]},
+               "properties": {"times": [p["time"] for p in DELIVERY],
+                              "stops": [bool(p.get("stop")) for p in DELIVERY]}}
+    r = _post(client, "/v1/doses/routes", {"routes": [{"id": "van", "points": DELIVERY}, feature],
+                                           "glazing": "open_window"})
+    assert r.status_code == 200
+    a, b = r.get_json()["results"]
+    assert a["dose_j_m2"]["erythema"] == pytest.approx(b["dose_j_m2"]["erythema"], rel=1e-12)
+    assert (a["driving_s"], a["parked_s"], a["gap_s"]) == (5100.0, 1200.0, 0.0)
+    assert r.get_json()["glazing"] == "open_window"
+
+
+def test_windscreen_and_side_glass_facts_through_the_api(client):
+    # Common practice: laminated glass blocks ≥ 98 % of erythemal UV; side glass most UVB.
+    doses = {}
+    for glazing in ("open_window", "clear_side_glass", "laminated_windscreen"):
+        r = _post(client, "/v1/doses/routes", {"routes": [{"id": "v", "points": DELIVERY}], "glazing": glazing})
+        doses[glazing] = r.get_json()["results"][0]["dose_j_m2"]["erythema"]
+    assert doses["laminated_windscreen"] <= 0.02 * doses["open_window"]
+    assert doses["clear_side_glass"] < 0.5 * doses["open_window"]
+
+
+def test_route_errors_name_route_and_field(client):
+    backwards = [dict(DELIVERY[0]), dict(DELIVERY[0], lat=48.2)]
+    r = _post(client, "/v1/doses/routes", {"routes": [{"id": "ok", "points": DELIVERY},
+                                                      {"id": "late", "points": backwards}]})
+    assert r.status_code == 422
+    error = r.get_json()["errors"][0]
+    assert (error["index"], error["id"], error["field"]) == (1, "late", "routes[1]")
+    assert "time must be later" in error["reason"]
+    r = _post(client, "/v1/doses/routes", {"routes": [{"id": "x", "points": DELIVERY}], "driver_side": "middle"})
+    assert r.status_code == 422 and (None, None, "driver_side") in _problem_fields(r)
+    r = _post(client, "/v1/doses/routes", {"routes": [{"id": "x", "points": [dict(DELIVERY[0], time="09:00")]
+                                                       + DELIVERY[1:]}]})
+    assert r.status_code == 422 and r.get_json()["errors"][0]["field"] == "routes[0].points"
+
+
+@pytest.mark.redis
+def test_windows_through_a_real_redis_cache(make_app, contract_client_for, redis_url, redis_client):
+    client = contract_client_for(make_app(REDIS_URL=redis_url))
+    first = _post(client, "/v1/doses/windows", {"records": [WINDOW], "step_s": 1800}).get_json()
+    assert redis_client.dbsize() > 0
+    second = _post(client, "/v1/doses/windows", {"records": [WINDOW], "step_s": 1800}).get_json()
+    assert first["results"] == second["results"]
+
+
+@pytest.mark.gunicorn
+def test_windows_served_by_gunicorn(gunicorn_server):
+    request = urllib.request.Request(gunicorn_server + "/v1/doses/windows",
+                                     data=json.dumps({"records": [WINDOW], "step_s": 1800}).encode(),
+                                     headers={"Content-Type": "application/json"})
+    with urllib.request.urlopen(request, timeout=60) as reply:
+        body = json.loads(reply.read())
+    assert reply.status == 200 and body["results"][0]["dose_j_m2"]["erythema"] > 0
