@@ -1,6 +1,7 @@
 """A real gunicorn under deploy/gunicorn.conf.py: it serves, and SIGTERM drains in-flight work."""
 from __future__ import annotations
 
+import http.client
 import json
 import os
 import signal
@@ -108,6 +109,46 @@ def test_sigterm_lets_the_in_flight_request_finish_and_exits_cleanly(tmp_path):
     assert any("Shutting down: Master" in m for m in messages)
     # The metrics directory the config made for itself is gone with the server.
     assert not list(private_tmp.glob("uvdose-metrics-*"))
+
+
+def _daytime_batch(size: int) -> bytes:
+    """Distinct grid cells around solar noon over southern Europe (an invented survey grid)."""
+    records = [{"id": f"plot-{i}", "time": f"2026-06-21T11:{i % 60:02d}:00Z",
+                "lat": round(36.0 + (i // 100) * 0.25, 3), "lon": round(-5.0 + (i % 100) * 0.25, 3)}
+               for i in range(size)]
+    return json.dumps({"records": records}).encode()
+
+
+def test_sigterm_during_a_real_batch_still_answers_it_in_full(tmp_path):
+    size = 1000
+    body = _daytime_batch(size)
+    process, base_url, _, logs = _start(tmp_path, "service.app:create_app()", {"UVDOSE_CACHE": "off"})
+    port = int(base_url.rsplit(":", 1)[1])
+    try:
+        connection = http.client.HTTPConnection("127.0.0.1", port, timeout=60)
+        connection.request("POST", "/v1/irradiance", body=body,
+                           headers={"Content-Type": "application/json", "X-Request-ID": "drain-batch"})
+        time.sleep(0.05)  # the whole body is on the wire; let the worker start on it
+        process.send_signal(signal.SIGTERM)
+        signalled = time.monotonic()
+        reply = connection.getresponse()
+        payload = reply.read()
+        answered = time.monotonic()
+        exit_code = process.wait(timeout=30)
+    finally:
+        if process.poll() is None:
+            process.kill()
+            process.wait()
+        for log in logs:
+            log.close()
+    assert answered > signalled, "the batch finished before SIGTERM; nothing was in flight"
+    assert reply.status == 200
+    results = json.loads(payload)["results"]
+    assert [r["id"] for r in results] == [f"plot-{i}" for i in range(size)]
+    assert all(r["uv_index"] > 0 for r in results), "every record is in daylight"
+    assert exit_code == 0
+    (line,) = [line for line in _json_lines(tmp_path / "stdout.log") if line["request_id"] == "drain-batch"]
+    assert (line["status"], line["route"]) == (200, "/v1/irradiance")
 
 
 def test_a_broken_key_file_stops_the_server_at_start(tmp_path):

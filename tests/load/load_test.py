@@ -129,7 +129,13 @@ def start_gunicorn(port: int, redis_url: str, workdir: Path, workers: int, threa
         with urllib.request.urlopen(base_url + "/readyz", timeout=2) as reply:
             return reply.status == 200
 
-    wait_for(answers, 60, "gunicorn")
+    try:
+        wait_for(answers, 120, "gunicorn")
+    except Exception:
+        process.kill()
+        process.wait()
+        log.close()
+        raise
     return process, base_url, log
 
 
@@ -180,8 +186,12 @@ def run(args) -> int:
     redis = ThrowawayRedis(free_loopback_port(), workdir)
     redis.start()
     empty_memory, _ = redis.memory()
-    gunicorn, base_url, log = start_gunicorn(free_loopback_port(), f"redis://127.0.0.1:{redis.port}/0",
-                                             workdir, args.workers, args.threads)
+    try:
+        gunicorn, base_url, log = start_gunicorn(free_loopback_port(), f"redis://127.0.0.1:{redis.port}/0",
+                                                 workdir, args.workers, args.threads)
+    except Exception:
+        redis.stop()
+        raise
     sizes = [size for size, _ in BATCH_MIX]
     weights = [share for _, share in BATCH_MIX]
     # Bodies are built before the clock starts so the client's JSON work is not measured.
