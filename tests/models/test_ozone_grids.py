@@ -30,7 +30,8 @@ def _write_csv(path, dates, lats, lons, values, header="date,latitude_deg,longit
     return path
 
 
-def _write_netcdf(path, dates, lats, lons, values, period="day", units="DU", variable="ozone_column"):
+def _write_netcdf(path, dates, lats, lons, values, period="day", units="DU", variable="ozone_column",
+                  dtype="f4"):
     netCDF4 = pytest.importorskip("netCDF4")
     with netCDF4.Dataset(path, "w") as ds:
         ds.ozone_period = period
@@ -43,7 +44,7 @@ def _write_netcdf(path, dates, lats, lons, values, period="day", units="DU", var
         time[:] = [(np.datetime64(d, "D") - base).astype(int) for d in dates]
         ds.createVariable("latitude", "f8", ("latitude",))[:] = lats
         ds.createVariable("longitude", "f8", ("longitude",))[:] = lons
-        var = ds.createVariable(variable, "f4", ("time", "latitude", "longitude"))
+        var = ds.createVariable(variable, dtype, ("time", "latitude", "longitude"))
         var.units = units
         var[:] = values
     return path
@@ -120,6 +121,24 @@ def test_netcdf_grid_matches_the_csv_grid(tmp_path, csv_grid):
     assert ca.all() and cb.all()
     # the NetCDF file stores float32
     assert np.max(np.abs(a - b)) < 1e-3
+
+
+def test_netcdf_values_at_nodes_come_back_exactly(tmp_path):
+    values = _values()
+    grid = OzoneGrid.load(_write_netcdf(tmp_path / "exact.nc", DATES, LATS, LONS, values, dtype="f8"))
+    k, j, i = np.meshgrid(range(len(DATES)), range(LATS.size), range(LONS.size), indexing="ij")
+    got, covered = grid.lookup(LATS[j], LONS[i], np.array([_noon(d) for d in DATES])[k])
+    assert covered.all() and np.array_equal(got, values)
+
+
+def test_monthly_netcdf_grid(tmp_path):
+    values = np.stack([np.full((2, 2), 300.0), np.full((2, 2), 360.0)])
+    path = _write_netcdf(tmp_path / "monthly.nc", ["2026-01-01", "2026-02-01"], [0.0, 10.0], [0.0, 10.0],
+                         values, period="month")
+    grid = OzoneGrid.load(path)
+    assert grid.time_span_unix_s == (_unix("2026-01-01T00:00:00"), _unix("2026-03-01T00:00:00"))
+    got, _ = grid.lookup([5.0], [5.0], [_unix("2026-02-15T00:00:00")])
+    assert got[0] == pytest.approx(360.0)
 
 
 def test_monthly_grid_centres_on_mid_month(tmp_path):

@@ -183,3 +183,20 @@ def test_served_by_gunicorn(gunicorn_server):
     expected = climatological_ozone_du(45.0, 7.0, day_of_year_from_unix(_unix("2026-06-21T12:00:00")))[0]
     assert body["results"][0]["ozone_du"] == expected
     assert body["results"][0]["ozone_source"] == "climatology"
+
+
+def test_irradiance_endpoint_reports_the_same_ozone(make_app, contract_client_for):
+    # With the grid-cell cache off the irradiance endpoint computes at the exact inputs;
+    # the ozone it reports using must then be the value this endpoint gives. (With the
+    # cache on it computes, and reports, the ozone of the cell centre.)
+    client = contract_client_for(make_app(UVDOSE_CACHE="off"))
+    records = [
+        {"id": "a", "lat": 48.2, "lon": 16.4, "time": "2026-03-21T10:00:00Z"},
+        {"id": "b", "lat": -23.5, "lon": -46.6, "time": "2026-12-21T15:00:00-03:00"},
+    ]
+    ozone = client.post(ROUTE, json={"records": records}).get_json()["results"]
+    irradiance = client.post("/v1/irradiance", json={"records": records, "spectra": ["erythema"]})
+    assert irradiance.status_code == 200
+    used = irradiance.get_json()["results"]
+    assert [r["ozone_du"] for r in used] == [r["ozone_du"] for r in ozone]
+    assert [r["ozone_source"] for r in used] == [r["ozone_source"] for r in ozone]
