@@ -53,6 +53,15 @@ def _start(tmp_path: Path, app: str, extra_env: dict[str, str]):
     return process, base_url, private_tmp, (stdout, stderr)
 
 
+def _clean_up(process: subprocess.Popen, logs) -> None:
+    """Kill the server if a failed assertion left it running; close its log files."""
+    if process.poll() is None:
+        process.kill()
+        process.wait()
+    for log in logs:
+        log.close()
+
+
 def _json_lines(path: Path) -> list[dict]:
     return [json.loads(line) for line in path.read_text().splitlines() if line.strip()]
 
@@ -88,11 +97,7 @@ def test_sigterm_lets_the_in_flight_request_finish_and_exits_cleanly(tmp_path):
         client.join(timeout=30)
         exit_code = process.wait(timeout=30)
     finally:
-        if process.poll() is None:
-            process.kill()
-            process.wait()
-        for log in logs:
-            log.close()
+        _clean_up(process, logs)
 
     assert "error" not in outcome, outcome.get("error")
     assert outcome["status"] == 200
@@ -136,11 +141,7 @@ def test_sigterm_during_a_real_batch_still_answers_it_in_full(tmp_path):
         answered = time.monotonic()
         exit_code = process.wait(timeout=30)
     finally:
-        if process.poll() is None:
-            process.kill()
-            process.wait()
-        for log in logs:
-            log.close()
+        _clean_up(process, logs)
     assert answered > signalled, "the batch finished before SIGTERM; nothing was in flight"
     assert reply.status == 200
     results = json.loads(payload)["results"]

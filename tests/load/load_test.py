@@ -1,6 +1,6 @@
 """Bounded load test: gunicorn + a real Redis on loopback, Redis restarted mid-run.
 
-    python tests/load/load_test.py [--duration 60] [--rate 4] [--max-requests 5000]
+    python tests/load/load_test.py [--duration 60] [--rate 2] [--max-requests 5000]
 
 Not collected by pytest (no ``test_`` prefix). What it does:
 
@@ -126,7 +126,7 @@ def start_gunicorn(port: int, redis_url: str, workdir: Path, workers: int, threa
     def answers() -> bool:
         if process.poll() is not None:
             raise RuntimeError(f"gunicorn exited with {process.returncode}; see {workdir}/gunicorn.log")
-        with urllib.request.urlopen(base_url + "/readyz", timeout=2) as reply:
+        with urllib.request.urlopen(base_url + "/livez", timeout=2) as reply:
             return reply.status == 200
 
     try:
@@ -217,6 +217,12 @@ def run(args) -> int:
         finally:
             in_flight.release()
 
+    try:
+        with urllib.request.urlopen(base_url + "/readyz", timeout=30) as reply:
+            readiness = reply.status
+    except urllib.error.HTTPError as error:
+        readiness = error.code
+    print(f"readiness: GET /readyz answered {readiness} before the run")
     print(f"load: {args.rate} req/s for {args.duration} s (at most {args.max_requests} requests, "
           f"{args.concurrency} in flight) against gunicorn {args.workers}x{args.threads} at {base_url}, "
           f"Redis on port {redis.port}")
@@ -288,7 +294,7 @@ def report(results, elapsed, late, restart_window, counters, exit_code, workdir)
 def main() -> int:
     parser = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     parser.add_argument("--duration", type=float, default=60.0, help="seconds of load (default 60)")
-    parser.add_argument("--rate", type=float, default=4.0, help="requests per second (default 4)")
+    parser.add_argument("--rate", type=float, default=2.0, help="requests per second (default 2)")
     parser.add_argument("--max-requests", type=int, default=5000, help="hard cap on requests sent")
     parser.add_argument("--concurrency", type=int, default=8, help="most requests in flight")
     parser.add_argument("--workers", type=int, default=2, help="gunicorn worker processes")
