@@ -145,6 +145,22 @@ def test_global_area_weighted_mean_near_300_du():
     assert 285.0 <= mean <= 315.0
 
 
+@pytest.mark.parametrize(
+    "station, lat, lon, annual_mean_du",
+    [
+        # Long-term annual means of ground-based (Dobson) records, all from memory:
+        ("Arosa, Switzerland", 46.8, 9.7, 330.0),
+        ("Mauna Loa, Hawaii", 19.5, -155.6, 270.0),
+        ("Lauder, New Zealand", -45.0, 169.7, 315.0),
+    ],
+)
+def test_station_annual_means_within_12_percent(station, lat, lon, annual_mean_du):
+    # A coarse check only: the fit runs high at northern mid-latitudes (~+10 % at
+    # Arosa) and low in the tropics (see the tropical test); 12 % bounds both.
+    mean = climatological_ozone_du(lat, lon, DAYS).mean()
+    assert mean == pytest.approx(annual_mean_du, rel=0.12), station
+
+
 def test_pre_depletion_climatology_shows_no_antarctic_ozone_hole():
     # The documented limitation: in October over 75-85 S observed columns since the
     # 1980s often fall below 220 DU (the usual threshold of depleted areas: common
