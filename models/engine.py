@@ -18,7 +18,7 @@ from typing import Mapping, Sequence
 import numpy as np
 
 from models import MODEL_VERSION, action_spectra, clear_sky, optics, receivers, surfaces, uv_index
-from models.ozone_grids import OzoneResolver
+from models.ozone_grids import OzoneResolver, default_resolver
 from models.solar_geometry import pressure_from_elevation_hpa, solar_position
 from models.spectral_grid import WAVELENGTH_NM
 
@@ -167,12 +167,6 @@ class EngineResult:
         return cls(effective_w_m2=effective, spectrum_w_m2_nm=spectrum, **plain)
 
 
-@lru_cache(maxsize=1)
-def default_ozone_resolver() -> OzoneResolver:
-    """The resolver configured from the environment (operator grids, then climatology)."""
-    return OzoneResolver.from_environment()
-
-
 @lru_cache(maxsize=16)
 def _weights(names: tuple[str, ...]) -> np.ndarray:
     return action_spectra.weight_matrix(names, WAVELENGTH_NM)
@@ -208,7 +202,7 @@ def compute(
     transmittance : spectral transmittance of a glazing or film on ``WAVELENGTH_NM``,
         shape (W,) or (N, W); ``None`` for an unobstructed receiver.
     ozone_resolver : where ozone comes from when a record gives none; defaults to
-        :func:`default_ozone_resolver`.
+        :func:`models.ozone_grids.default_resolver` (operator grids, then climatology).
     method : clear-sky method, see :func:`models.clear_sky.spectral_irradiance`.
     """
     c = conditions
@@ -216,7 +210,7 @@ def compute(
     pressure_hpa = _given(c.pressure_hpa, pressure_from_elevation_hpa(elevation_m))
     sun = solar_position(c.time_unix_s, c.latitude_deg, c.longitude_deg, elevation_m, pressure_hpa)
 
-    resolver = ozone_resolver or default_ozone_resolver()
+    resolver = ozone_resolver or default_resolver()
     ozone_du, ozone_source = resolver.resolve(c.latitude_deg, c.longitude_deg, c.time_unix_s, c.ozone_du)
     surface_albedo = _surface_albedo(c)
 
