@@ -6,15 +6,20 @@ be answered with exactly what the uncached engine gives for the cell-centre inpu
 """
 from __future__ import annotations
 
+import json
+import os
 import shutil
 import socket
 import subprocess
+import sys
 import time
+import urllib.request
+from datetime import datetime, timezone
+from pathlib import Path
 
 import numpy as np
 import pytest
 import redis
-from flask import Blueprint, jsonify, request
 
 from service.app import create_app
 from service.cache import GridCellCache, _Breaker
@@ -176,39 +181,50 @@ def test_breaker_backoff_doubles_and_resets():
     assert breaker.allow() and not breaker.is_open
 
 
-# -- through the Flask app ---------------------------------------------------------------
+# -- through the app: POST /v1/irradiance ---------------------------------------------
 
-def _app_with_cached_route(redis_url: str):
-    """The app factory's app plus a small route that sends a batch through the cache."""
-    app = create_app({"TESTING": True, "UVDOSE_CACHE": "redis", "REDIS_URL": redis_url,
-                      "UVDOSE_REDIS_TIMEOUT_S": "0.2", "UVDOSE_REDIS_CONNECT_TIMEOUT_S": "0.2",
-                      "UVDOSE_CACHE_RETRY_S": "0.3"})
-    probe = Blueprint("cache_probe", __name__)
-
-    @probe.post("/cache-probe")
-    def cache_probe():
-        body = request.get_json()
-        columns = {name: np.asarray(values, dtype=float) for name, values in body.items()}
-        result = app.extensions["uvdose_cache"].compute_through(columns, RecordingEngine(), CONTEXT)
-        return jsonify({"uv_index": result["uv_index"].tolist()})
-
-    app.register_blueprint(probe)
-    return app
+def _irradiance_body(n: int, cells: int, seed: int) -> dict:
+    """Whole-second times (so ISO 8601 text round-trips exactly), one farm region."""
+    columns = batch(n, cells=cells, seed=seed)
+    times = np.round(columns["time_unix_s"])
+    return {"columns": {
+        "time": [datetime.fromtimestamp(t, timezone.utc).isoformat() for t in times],
+        "lat": columns["latitude_deg"].tolist(),
+        "lon": columns["longitude_deg"].tolist(),
+        "ozone_du": [None if np.isnan(v) else float(v) for v in columns["ozone_du"]],
+    }, "spectra": ["erythema", "plant_damage"]}
 
 
-def test_app_answers_through_redis_faults(throwaway_redis):
-    app = _app_with_cached_route(throwaway_redis.url)
+def _uncached_cell_centre_uvi(cache: GridCellCache, body: dict) -> np.ndarray:
+    from models import engine
+
+    given = body["columns"]
+    columns = {
+        "time_unix_s": np.array([datetime.fromisoformat(t).timestamp() for t in given["time"]]),
+        "latitude_deg": np.array(given["lat"]),
+        "longitude_deg": np.array(given["lon"]),
+        "ozone_du": np.array([np.nan if v is None else v for v in given["ozone_du"]]),
+    }
+    centres = cache.grid.cell_centres(columns)
+    return engine.compute(engine.Conditions.from_columns(centres), spectra=body["spectra"]).uv_index
+
+
+FAULT_SETTINGS = {"UVDOSE_REDIS_TIMEOUT_S": "0.2", "UVDOSE_REDIS_CONNECT_TIMEOUT_S": "0.2",
+                  "UVDOSE_CACHE_RETRY_S": "0.3", "UVDOSE_CACHE_RETRY_MAX_S": "0.3"}
+
+
+def test_irradiance_route_answers_through_redis_faults(throwaway_redis):
+    app = create_app({"TESTING": True, "UVDOSE_CACHE": "redis", "REDIS_URL": throwaway_redis.url,
+                      **FAULT_SETTINGS})
     cache = app.extensions["uvdose_cache"]
     client = app.test_client()
-    columns = batch(400, cells=20, seed=14)
-    numeric = {k: v for k, v in columns.items() if k != "surface_type"}
-    body = {k: v.tolist() for k, v in numeric.items()}
-    reference = expected(cache, numeric)["uv_index"]
+    body = _irradiance_body(200, cells=10, seed=14)
+    reference = _uncached_cell_centre_uvi(cache, body)
 
     def ask():
-        reply = client.post("/cache-probe", json=body)
-        assert reply.status_code == 200
-        np.testing.assert_array_equal(reply.get_json()["uv_index"], reference)
+        reply = client.post("/v1/irradiance", json=body)
+        assert reply.status_code == 200, reply.get_data(as_text=True)[:500]
+        np.testing.assert_allclose(reply.get_json()["columns"]["uv_index"], reference, rtol=1e-12, atol=1e-14)
 
     ask()
     throwaway_redis.client().execute_command("CLIENT", "PAUSE", "1500", "ALL")
@@ -219,8 +235,47 @@ def test_app_answers_through_redis_faults(throwaway_redis):
     ask()
     ask()
     throwaway_redis.start()
-    time.sleep(0.65)  # the second fault doubled the backoff to 0.6 s
+    time.sleep(0.35)
     ask()
     ask()
     assert cache.stats["error"] >= 2 and cache.stats["hit"] > 0
     assert cache.status()["answers"] is True
+
+
+@pytest.mark.gunicorn
+def test_gunicorn_serves_through_a_stopped_and_restarted_redis(throwaway_redis, tmp_path):
+    from tests.service.conftest import free_loopback_port, stop, wait_until_answers
+
+    port = free_loopback_port()
+    env = {**os.environ, "UVDOSE_CACHE": "redis", "REDIS_URL": throwaway_redis.url, **FAULT_SETTINGS}
+    env.pop("PROMETHEUS_MULTIPROC_DIR", None)
+    log = (tmp_path / "gunicorn.log").open("wb")
+    server = subprocess.Popen(
+        [sys.executable, "-m", "gunicorn", "--workers", "1", "--bind", f"127.0.0.1:{port}",
+         "--timeout", "120", "service.app:create_app()"],
+        cwd=Path(__file__).resolve().parents[2], env=env, stdout=subprocess.DEVNULL, stderr=log,
+    )
+    base = f"http://127.0.0.1:{port}"
+    body = json.dumps(_irradiance_body(100, cells=8, seed=15)).encode()
+
+    def ask() -> list[float]:
+        request = urllib.request.Request(base + "/v1/irradiance", data=body,
+                                         headers={"Content-Type": "application/json"})
+        with urllib.request.urlopen(request, timeout=60) as reply:
+            assert reply.status == 200
+            return json.loads(reply.read())["columns"]["uv_index"]
+
+    try:
+        wait_until_answers(base + "/livez", server)
+        first = ask()
+        assert ask() == first  # a hit
+        throwaway_redis.stop()
+        assert ask() == first and ask() == first
+        throwaway_redis.start()
+        time.sleep(0.35)
+        assert ask() == first and ask() == first
+        cells = throwaway_redis.client().keys(b"uvdose:c:*")
+        assert len(cells) == 8  # the worker reconnected by itself and refilled the cells
+    finally:
+        stop(server)
+        log.close()
