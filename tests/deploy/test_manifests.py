@@ -324,6 +324,19 @@ def test_redis_url_points_at_the_redis_service_and_redis_is_a_bounded_lru_cache(
     assert int(args[args.index("--maxmemory") + 1].rstrip("mb")) < memory_limit_mi
 
 
+def test_only_api_pods_may_reach_redis():
+    policy = by_name("NetworkPolicy", "uvdose-redis")
+    redis_pod = by_name("Deployment", "uvdose-redis")["spec"]["template"]["metadata"]["labels"]
+    api_pod = by_name("Deployment", "uvdose")["spec"]["template"]["metadata"]["labels"]
+    assert policy["spec"]["podSelector"]["matchLabels"].items() <= redis_pod.items()
+    (rule,) = policy["spec"]["ingress"]
+    (source,) = rule["from"]
+    assert source["podSelector"]["matchLabels"].items() <= api_pod.items()
+    assert not source["podSelector"]["matchLabels"].items() <= redis_pod.items()
+    redis_port = by_name("Service", "uvdose-redis")["spec"]["ports"][0]["port"]
+    assert rule["ports"] == [{"protocol": "TCP", "port": redis_port}]
+
+
 def test_api_key_file_is_mounted_where_the_config_says():
     config = by_name("ConfigMap", "uvdose-config")["data"]
     deployment = by_name("Deployment", "uvdose")
