@@ -325,12 +325,15 @@ def field_doses() -> Response:
     days = (first + np.arange(n_days)).astype("datetime64[s]").astype(np.int64).astype(float)
     ozone, cmf = _daily_inputs(options.get("daily"), len(batch), first, n_days)
     spectra = list(options.get("spectra") or DEFAULT_FIELD_SPECTRA)
-    step_s = float(options.get("step_s") or dose.DEFAULT_DAY_STEP_S)
+    # Gauss–Legendre over each daylight period unless the client asks for a step.
+    step_s = options.get("step_s")
+    quadrature = (dict(day_quadrature="trapezoid", step_s=float(step_s)) if step_s is not None
+                  else dict(day_quadrature="gauss_legendre"))
     transmittance, label = _transmittance(options)
     evaluate = _evaluator(spectra, transmittance, label, "fields")
     try:
         season = dose.field_season(batch.columns, days, evaluate, ozone_du=ozone,
-                                   cloud_modification_factor=cmf, step_s=step_s, spectra=spectra)
+                                   cloud_modification_factor=cmf, spectra=spectra, **quadrature)
     except ValueError as error:
         raise _model_problem(error) from None
     metrics.count_records(FIELDS_ROUTE, len(batch))
@@ -355,7 +358,9 @@ def field_doses() -> Response:
         })
         results.append({"id": record_id, "days": day_rows})
     body = _common(spectra, step_s, label)
-    body.update(first_day=dates[0], last_day=dates[-1], samples=season.samples, results=results)
+    body.update(first_day=dates[0], last_day=dates[-1], samples=season.samples, results=results,
+                quadrature=(f"trapezoid:{step_s:g}s" if step_s is not None
+                            else f"gauss_legendre:{dose.DEFAULT_GAUSS_NODES}"))
     return json_response(body)
 
 
