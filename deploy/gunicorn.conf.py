@@ -94,7 +94,9 @@ proc_name = "uvdose"
 control_socket_disable = True
 
 accesslog = None
-loglevel = os.environ.get("UVDOSE_LOG_LEVEL", "info").lower()
+loglevel = os.environ.get("UVDOSE_LOG_LEVEL", "info").strip().lower()
+if loglevel not in {"debug", "info", "warning", "error", "critical"}:
+    raise SystemExit(f"UVDOSE_LOG_LEVEL: must be debug, info, warning, error or critical, got {loglevel!r}")
 logconfig_dict = {
     "version": 1,
     "disable_existing_loggers": False,

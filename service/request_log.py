@@ -29,7 +29,8 @@ ids, no query strings, no client address, no API keys, no ``Authorization`` head
 =================  ==============================================================
 
 Settings (``app.config`` first, then the environment): ``UVDOSE_REQUEST_LOG``
-(``on``/``off``, default ``on``) and ``UVDOSE_LOG_LEVEL`` (default ``INFO``).
+(``on``/``off``, default ``on``) and ``UVDOSE_LOG_LEVEL`` (``debug`` … ``critical``,
+default ``info``); any other value stops the app at start with a message naming it.
 :class:`JsonLogFormatter` is also what ``deploy/gunicorn.conf.py`` uses for the
 server's own log, so everything the container prints is JSON lines.
 """
@@ -99,11 +100,33 @@ def accepted_request_id(value: str | None) -> str | None:
     return None
 
 
+LOG_LEVELS = ("DEBUG", "INFO", "WARNING", "ERROR", "CRITICAL")
+_ON, _OFF = {"on", "1", "true", "yes"}, {"off", "0", "false", "no"}
+
+
+class LogSettingsError(ValueError):
+    """A logging setting holds a value that cannot be used."""
+
+
 def _setting(app: Flask, name: str, default: str) -> str:
     value = app.config.get(name)
     if value is None:
         value = os.environ.get(name, default)
-    return str(value)
+    return str(value).strip()
+
+
+def _request_log_enabled(app: Flask) -> bool:
+    value = _setting(app, "UVDOSE_REQUEST_LOG", "on").lower()
+    if value not in _ON | _OFF:
+        raise LogSettingsError(f"UVDOSE_REQUEST_LOG must be on or off, got {value!r}")
+    return value in _ON
+
+
+def _log_level(app: Flask) -> str:
+    value = _setting(app, "UVDOSE_LOG_LEVEL", "INFO").upper()
+    if value not in LOG_LEVELS:
+        raise LogSettingsError(f"UVDOSE_LOG_LEVEL must be one of {', '.join(LOG_LEVELS)}, got {value!r}")
+    return value
 
 
 class _StandardStreamHandler(logging.StreamHandler):
@@ -132,7 +155,7 @@ def json_handler(stream_name: str = "stderr") -> logging.Handler:
 
 def configure_logger(logger: logging.Logger, level: str, stream_name: str) -> logging.Logger:
     """Give ``logger`` one JSON handler on stdout/stderr (idempotent) and the given level."""
-    logger.setLevel(level.upper())
+    logger.setLevel(level)
     if not any(getattr(h, _HANDLER_MARK, False) for h in logger.handlers):
         logger.addHandler(json_handler(stream_name))
     logger.propagate = False
@@ -141,10 +164,8 @@ def configure_logger(logger: logging.Logger, level: str, stream_name: str) -> lo
 
 def init_app(app: Flask) -> None:
     """Install request-id handling and the per-request JSON log line on ``app``."""
-    enabled = _setting(app, "UVDOSE_REQUEST_LOG", "on").strip().lower() not in {
-        "off", "0", "false", "no",
-    }
-    level = _setting(app, "UVDOSE_LOG_LEVEL", "INFO")
+    enabled = _request_log_enabled(app)
+    level = _log_level(app)
     logger = configure_logger(logging.getLogger(REQUEST_LOGGER_NAME), level, "stdout")
     # The app's other messages (unhandled exceptions and the like) go to the root
     # logger. Under gunicorn, deploy/gunicorn.conf.py gives it a JSON handler; when
@@ -152,7 +173,7 @@ def init_app(app: Flask) -> None:
     app.logger.removeHandler(flask_default_handler)
     root = logging.getLogger()
     if not root.handlers:
-        root.setLevel(level.upper())
+        root.setLevel(level)
         root.addHandler(json_handler("stderr"))
 
     @app.before_request

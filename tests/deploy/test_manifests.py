@@ -184,7 +184,7 @@ def test_gunicorn_defaults_and_environment(gunicorn_settings, monkeypatch):
 
 
 @pytest.mark.parametrize("name, value", [("UVDOSE_WORKERS", "two"), ("UVDOSE_THREADS", "0"),
-                                         ("UVDOSE_PRELOAD", "maybe")])
+                                         ("UVDOSE_PRELOAD", "maybe"), ("UVDOSE_LOG_LEVEL", "loud")])
 def test_gunicorn_config_refuses_bad_values_by_name(gunicorn_settings, name, value):
     with pytest.raises(SystemExit, match=name):
         gunicorn_settings({name: value})

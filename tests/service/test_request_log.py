@@ -7,7 +7,7 @@ import pytest
 from flask import g, jsonify, request
 
 from service.app import create_app
-from service.request_log import REQUEST_ID_HEADER, REQUEST_ID_MAX_LENGTH, json_handler
+from service.request_log import REQUEST_ID_HEADER, REQUEST_ID_MAX_LENGTH, LogSettingsError, json_handler
 
 # Values of an invented delivery-depot scenario; they must never reach a log line.
 SECRET_LAT, SECRET_LON, SECRET_ID = "47.123456", "8.654321", "van-0042-kessler"
@@ -158,3 +158,18 @@ def test_creating_many_apps_does_not_duplicate_lines(capsys):
     capsys.readouterr()
     client.get("/v1/nowhere")
     assert len(_lines(capsys.readouterr().out)) == 1
+
+
+@pytest.mark.parametrize("name, value", [("UVDOSE_REQUEST_LOG", "sometimes"), ("UVDOSE_LOG_LEVEL", "loud")])
+def test_unusable_log_settings_stop_start_up_naming_the_variable(name, value):
+    with pytest.raises(LogSettingsError, match=name):
+        create_app({name: value})
+
+
+def test_log_level_applies_to_request_lines(capsys):
+    client = _app(UVDOSE_LOG_LEVEL="warning").test_client()
+    capsys.readouterr()
+    client.get("/v1/nowhere")  # 404: a warning line
+    client.post("/v1/test-batch", json={"records": []})  # 200: an info line, filtered
+    lines = _lines(capsys.readouterr().out)
+    assert [line["status"] for line in lines] == [404]
