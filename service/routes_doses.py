@@ -120,7 +120,16 @@ def _evaluator(spectra, transmittance, label: str, kind: str) -> dose.Evaluator:
     compute = dose.engine_evaluator(spectra, transmittance=transmittance,
                                     ozone_resolver=current_app.extensions.get("uvdose_ozone"))
     context = f"doses:{kind};spectra={','.join(spectra)};glazing={label}"
-    return lambda columns: compute_through_cache(columns, compute, context)
+
+    def evaluate(columns):
+        # Samples are built from validated input, so a ValueError inside the engine is
+        # our fault, not the client's: keep it out of the 422 path below.
+        try:
+            return compute_through_cache(columns, compute, context)
+        except ValueError as error:
+            raise RuntimeError(f"engine failed on dose samples: {error}") from error
+
+    return evaluate
 
 
 def _model_problem(error: ValueError, field_prefix: str = "") -> Problem:

@@ -164,3 +164,16 @@ def test_windows_served_by_gunicorn(gunicorn_server):
     with urllib.request.urlopen(request, timeout=60) as reply:
         body = json.loads(reply.read())
     assert reply.status == 200 and body["results"][0]["dose_j_m2"]["erythema"] > 0
+
+
+def test_engine_failure_is_a_server_error_not_the_clients(client, monkeypatch):
+    from models import dose
+
+    def broken(*args, **kwargs):
+        def evaluate(columns):
+            raise ValueError("internal shape mismatch")
+        return evaluate
+
+    monkeypatch.setattr(dose, "engine_evaluator", broken)
+    r = _post(client, "/v1/doses/windows", {"records": [WINDOW]})
+    assert r.status_code == 500 and r.mimetype == "application/problem+json"
