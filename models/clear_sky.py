@@ -104,14 +104,18 @@ def spectral_irradiance(solar_zenith_deg, earth_sun_distance_au, ozone_du, press
 
     ``method``: "direct" runs the full solve (:func:`spectral_irradiance_direct_solve`);
     "table" interpolates the precomputed table of ``models.irradiance_table``; "auto" uses
-    the table for records inside its range and the full solve for the rest. Until the
-    table exists, "auto" is the full solve and "table" is refused.
+    the table for records inside its range and the full solve for the rest; "table"
+    refuses a daytime record outside the table, naming the record and the field.
     """
     arguments = (solar_zenith_deg, earth_sun_distance_au, ozone_du, pressure_hpa,
                  surface_albedo, aod_550, angstrom_exponent, single_scattering_albedo,
                  asymmetry_factor)
-    if method == "direct" or method == "auto":
+    if method == "direct":
         return spectral_irradiance_direct_solve(*arguments)
-    if method == "table":
-        raise ValueError("clear-sky method 'table' is not available in this build")
+    if method in ("auto", "table"):
+        from models import irradiance_table
+
+        fallback = spectral_irradiance_direct_solve if method == "auto" else None
+        direct, diffuse = irradiance_table.spectral_irradiance(*arguments, direct_solve=fallback)
+        return ClearSkySpectrum(WAVELENGTH_NM, direct, diffuse)
     raise ValueError(f"unknown clear-sky method {method!r}; expected one of {METHODS}")
