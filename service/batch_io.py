@@ -250,8 +250,13 @@ _NUMBER_TYPES = frozenset((int, float, type(None)))
 _TEXT_TYPES = frozenset((str, type(None)))
 
 
+def _object_column(values: list) -> np.ndarray:
+    # np.array(values, dtype=object) would build a 2-D array from nested lists.
+    return np.fromiter(values, dtype=object, count=len(values))
+
+
 def _none_mask(values: list) -> np.ndarray:
-    return np.equal(np.array(values, dtype=object), None)
+    return np.equal(_object_column(values), None)
 
 
 def _check_number(rule: ColumnRule, values: list, n: int) -> tuple[np.ndarray, np.ndarray]:
@@ -310,7 +315,8 @@ def _check_text(rule: ColumnRule, values: list, n: int) -> tuple[np.ndarray, np.
     bad = np.zeros(n, dtype=bool)
     if not set(map(type, values)) <= _TEXT_TYPES:
         bad |= np.array([type(v) not in _TEXT_TYPES for v in values])
-    column = np.array(values, dtype=object)
+        values = [None if wrong else v for v, wrong in zip(values, bad)]
+    column = _object_column(values)
     missing = np.equal(column, None)
     if rule.required:
         bad |= missing
@@ -464,23 +470,37 @@ def _flatten(messages: Mapping[Any, Any], prefix: str = "") -> Iterable[tuple[st
 def read_batch(
     request: Request, *, record_schema: Schema, options_schema: Schema, max_records: int
 ) -> BatchRequest:
-    """Read a JSON (``records`` or ``columns``) or CSV batch and validate it whole.
+    """Read a JSON (``records`` or ``columns``) or CSV batch from a request and validate it whole.
 
     CSV bodies carry their options in the query string (same names; lists comma-separated).
     """
-    mimetype = request.mimetype
+    return read_batch_bytes(request.get_data(), request.mimetype, request.args,
+                            record_schema=record_schema, options_schema=options_schema,
+                            max_records=max_records)
+
+
+def read_batch_bytes(
+    data: bytes,
+    mimetype: str,
+    query: Mapping[str, str],
+    *,
+    record_schema: Schema,
+    options_schema: Schema,
+    max_records: int,
+) -> BatchRequest:
+    """:func:`read_batch` on a body held in memory (the offline ``uvdose batch`` uses this too)."""
     if mimetype == CSV_MEDIA_TYPE:
-        raw, n, unknown = _csv_columns(request.get_data(), record_schema)
+        raw, n, unknown = _csv_columns(data, record_schema)
         if n > max_records:
             raise _too_many(n, max_records)
-        options, option_errors = _options(options_schema, _query_options(request, options_schema))
+        options, option_errors = _options(options_schema, _query_options(query, options_schema))
         batch = validate_columns(raw, record_schema, n=n, unknown=option_errors + unknown)
         return BatchRequest(batch, options, "csv")
     if mimetype != JSON_MEDIA_TYPE and not mimetype.endswith("+json"):
         raise Problem(415, "unsupported-media-type", "Unsupported Media Type",
                       f"Send {JSON_MEDIA_TYPE} or {CSV_MEDIA_TYPE}, not {mimetype or 'no Content-Type'}.")
     try:
-        body = orjson.loads(request.get_data())
+        body = orjson.loads(data)
     except orjson.JSONDecodeError as error:
         raise _problem_400(f"The body is not valid JSON: {error}") from None
     if not isinstance(body, dict):
@@ -599,13 +619,13 @@ def _float_or_text(text: str):
     return value if math.isfinite(value) else text
 
 
-def _query_options(request: Request, options_schema: Schema) -> dict[str, Any]:
+def _query_options(query: Mapping[str, str], options_schema: Schema) -> dict[str, Any]:
     options: dict[str, Any] = {}
     for name, field in options_schema.fields.items():
         wire = field.data_key or name
-        if wire not in request.args:
+        if wire not in query:
             continue
-        text = request.args[wire]
+        text = query[wire]
         if isinstance(field, fields.List):
             options[wire] = [item.strip() for item in text.split(",") if item.strip()]
         elif isinstance(field, fields.Boolean):
@@ -642,11 +662,13 @@ def rows_from_columns(columns: Mapping[str, Sequence]) -> list[dict[str, Any]]:
     return [dict(zip(keys, values)) for values in zip(*columns.values())]
 
 
-def csv_text(columns: Mapping[str, Sequence]) -> str:
-    """Equal-length columns as CSV text with a header line; ``None`` and NaN as empty cells."""
+def csv_text(columns: Mapping[str, Sequence], header: bool = True) -> str:
+    """Equal-length columns as CSV text (with a header line unless ``header`` is false);
+    ``None`` and NaN as empty cells."""
     out = io.StringIO()
     writer = csv.writer(out, lineterminator="\n")
-    writer.writerow(list(columns))
+    if header:
+        writer.writerow(list(columns))
     cleaned = [[None if isinstance(v, float) and v != v else v for v in values] for values in columns.values()]
     writer.writerows(zip(*cleaned))
     return out.getvalue()

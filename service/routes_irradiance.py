@@ -142,36 +142,24 @@ def spectrum_matrix(result: Mapping[str, np.ndarray]) -> tuple[np.ndarray, np.nd
     return np.asarray(full.wavelength_nm, dtype=np.float64), full.spectrum_w_m2_nm
 
 
-@blueprint.post(ROUTE)
-def irradiance() -> Response:
-    media_type = negotiate(request)
-    batch_request = read_batch(request, record_schema=_RECORDS, options_schema=_OPTIONS,
-                               max_records=current_app.config["UVDOSE_MAX_RECORDS"])
-    batch, options = batch_request.batch, batch_request.options
-    spectra = options.get("spectra") or default_spectra()
-    include_spectrum = options["include_spectrum"]
-    context = f"irradiance;spectra={','.join(spectra)};spectrum={int(include_spectrum)}"
-    result = compute_through_cache(batch.columns, engine_call(spectra, include_spectrum), context)
-    columns = result_columns(result, batch.ids, spectra)
-    metrics.count_records(ROUTE, len(batch))
-    wavelength_nm = spectrum = None
-    if include_spectrum:
-        wavelength_nm, spectrum = spectrum_matrix(result)
-
-    if media_type == CSV_MEDIA_TYPE:
-        if spectrum is not None:
-            for index, nm in enumerate(wavelength_nm):
-                columns[f"spectrum_w_m2_nm.{nm:g}"] = spectrum[:, index].tolist()
-        return csv_response(columns)
-
+def envelope(spectra: list[str], wavelength_nm: np.ndarray | None) -> dict[str, Any]:
+    """The response members besides the results."""
     body: dict[str, Any] = {"model_version": MODEL_VERSION, "caution": CAUTION, "spectra": spectra}
     if wavelength_nm is not None:
         body["wavelength_nm"] = wavelength_nm
-    if batch_request.layout == "columns":
-        if spectrum is not None:
-            columns["spectrum_w_m2_nm"] = spectrum
-        body["columns"] = columns
-        return json_response(body)
+    return body
+
+
+def csv_columns(columns: dict[str, list], wavelength_nm, spectrum) -> dict[str, list]:
+    """Flat columns plus one ``spectrum_w_m2_nm.<nm>`` column per wavelength when there is a spectrum."""
+    if spectrum is not None:
+        for index, nm in enumerate(wavelength_nm):
+            columns[f"spectrum_w_m2_nm.{nm:g}"] = spectrum[:, index].tolist()
+    return columns
+
+
+def result_rows(columns: dict[str, list], spectra: list[str], spectrum) -> list[dict[str, Any]]:
+    """One dict per record, effective irradiance nested under ``effective_w_m2``."""
     effective = {name: columns.pop(f"effective_w_m2.{name}") for name in spectra}
     nested = rows_from_columns(effective)
     rows: dict[str, Any] = {}
@@ -181,5 +169,38 @@ def irradiance() -> Response:
             rows["effective_w_m2"] = nested
     if spectrum is not None:
         rows["spectrum_w_m2_nm"] = spectrum.tolist()
-    body["results"] = rows_from_columns(rows)
+    return rows_from_columns(rows)
+
+
+def run(columns: Mapping[str, np.ndarray], ids: np.ndarray, spectra: list[str], include_spectrum: bool,
+        through: Callable | None = None) -> tuple[dict[str, list], np.ndarray | None, np.ndarray | None]:
+    """Compute validated columns; returns (flat output columns, wavelength_nm, spectrum)."""
+    compute = engine_call(spectra, include_spectrum)
+    context = f"irradiance;spectra={','.join(spectra)};spectrum={int(include_spectrum)}"
+    result = through(columns, compute, context) if through else compute(columns)
+    wavelength_nm = spectrum = None
+    if include_spectrum:
+        wavelength_nm, spectrum = spectrum_matrix(result)
+    return result_columns(result, ids, spectra), wavelength_nm, spectrum
+
+
+@blueprint.post(ROUTE)
+def irradiance() -> Response:
+    media_type = negotiate(request)
+    batch_request = read_batch(request, record_schema=_RECORDS, options_schema=_OPTIONS,
+                               max_records=current_app.config["UVDOSE_MAX_RECORDS"])
+    batch, options = batch_request.batch, batch_request.options
+    spectra = options.get("spectra") or default_spectra()
+    columns, wavelength_nm, spectrum = run(batch.columns, batch.ids, spectra, options["include_spectrum"],
+                                           through=compute_through_cache)
+    metrics.count_records(ROUTE, len(batch))
+    if media_type == CSV_MEDIA_TYPE:
+        return csv_response(csv_columns(columns, wavelength_nm, spectrum))
+    body = envelope(spectra, wavelength_nm)
+    if batch_request.layout == "columns":
+        if spectrum is not None:
+            columns["spectrum_w_m2_nm"] = spectrum
+        body["columns"] = columns
+    else:
+        body["results"] = result_rows(columns, spectra, spectrum)
     return json_response(body)

@@ -73,7 +73,7 @@ def _bodiless_copy(request: Request) -> Request:
     # The app has read the body already; response checks need only method, path and query.
     headers = [(k, v) for k, v in request.headers.items() if k.lower() != "content-length"]
     return Request(EnvironBuilder(path=request.path, method=request.method,
-                                  query_string=request.query_string, headers=headers).get_environ())
+                                  query_string=request.query_string.decode("latin-1"), headers=headers).get_environ())
 
 
 class ContractError(AssertionError):

@@ -69,3 +69,37 @@ def test_openapi_lists_the_action_spectra_the_models_define(openapi_spec):
     schemas = openapi_spec["components"]["schemas"]
     assert set(schemas["SpectrumName"]["enum"]) == set(ACTION_SPECTRA)
     assert schemas["SpectraOption"]["default"] == list(DEFAULT_SPECTRA)
+
+
+# --- property-based: generated requests never make the service fail -------------------------
+
+import schemathesis  # noqa: E402
+from hypothesis import HealthCheck, settings  # noqa: E402
+from schemathesis.checks import not_a_server_error  # noqa: E402
+from schemathesis.config import SchemathesisConfig  # noqa: E402
+from schemathesis.specs.openapi.checks import (  # noqa: E402
+    content_type_conformance,
+    response_schema_conformance,
+    status_code_conformance,
+)
+
+
+@pytest.fixture
+def generated_schema():
+    from service.app import create_app
+
+    # A small record limit keeps each generated batch cheap to compute.
+    app = create_app({"TESTING": True, "UVDOSE_MAX_RECORDS": 20, "UVDOSE_CACHE": "off"})
+    # Bounded for the 2-core CI box: examples and fuzzing, no exhaustive coverage phase.
+    config = SchemathesisConfig.from_dict({"phases": {"coverage": {"enabled": False}}, "seed": 20261202})
+    return schemathesis.openapi.from_wsgi("/openapi.yaml", app, config=config)
+
+
+generated = schemathesis.pytest.from_fixture("generated_schema")
+
+
+@generated.parametrize()
+@settings(max_examples=20, deadline=None, suppress_health_check=list(HealthCheck))
+def test_generated_requests_get_documented_answers_and_never_a_5xx(case):
+    case.call_and_validate(checks=[not_a_server_error, status_code_conformance,
+                                   content_type_conformance, response_schema_conformance])

@@ -1,0 +1,108 @@
+"""The uvdose command: offline batches through the same schemas and engine, and `serve`."""
+import csv
+import io
+import json
+import os
+import signal
+import subprocess
+import sys
+import urllib.request
+
+import pytest
+
+from service.cli import EXIT_INVALID, main, run_batch
+from tests.service.conftest import REPO, free_loopback_port, stop, wait_until_answers
+
+# Demo scenario of our own: hourly checks on the invented "Combe Basse" orchard, 20 June.
+HOURS = [f"2026-06-20T{h:02d}:00:00+02:00" for h in range(5, 22)]
+
+
+def _write_csv(path, rows):
+    with open(path, "w", newline="") as handle:
+        writer = csv.DictWriter(handle, fieldnames=list(rows[0]))
+        writer.writeheader()
+        writer.writerows(rows)
+
+
+def _records():
+    return [{"id": f"h{index}", "time": time, "lat": 44.05, "lon": 4.92, "elevation_m": 120}
+            for index, time in enumerate(HOURS)]
+
+
+def test_batch_csv_to_csv_in_chunks_equals_one_http_request(tmp_path, make_app, contract_client_for):
+    client = contract_client_for(make_app(UVDOSE_CACHE="off"))  # exact inputs, as offline
+    source, target = tmp_path / "hours.csv", tmp_path / "out.csv"
+    _write_csv(source, _records())
+    assert run_batch(str(source), str(target), chunk_size=4, spectra=["erythema"], progress=False) == 0
+    rows = list(csv.DictReader(io.StringIO(target.read_text())))
+    assert [row["id"] for row in rows] == [f"h{i}" for i in range(len(HOURS))]
+    http = client.post("/v1/irradiance", json={"records": _records(), "spectra": ["erythema"]}).get_json()
+    for row, result in zip(rows, http["results"]):
+        assert float(row["uv_index"]) == pytest.approx(result["uv_index"], rel=1e-9, abs=1e-12)
+
+
+def test_batch_json_to_json_keeps_the_response_shape(tmp_path):
+    source, target = tmp_path / "hours.json", tmp_path / "out.json"
+    source.write_text(json.dumps({"records": _records(), "spectra": ["plant_growth"]}))
+    assert main(["batch", str(source), str(target), "--chunk-size", "5", "--no-progress"]) == 0
+    body = json.loads(target.read_text())
+    assert body["spectra"] == ["plant_growth"]
+    assert "not medical or occupational-health advice" in body["caution"]
+    assert len(body["results"]) == len(HOURS)
+    by_id = {r["id"]: r for r in body["results"]}
+    assert by_id["h0"]["uv_index"] == 0  # 05:00 local, before sunrise
+    assert by_id["h8"]["uv_index"] > 5  # 13:00 local on the solstice at 44° N
+
+
+def test_chunking_does_not_change_the_numbers(tmp_path):
+    source = tmp_path / "hours.csv"
+    _write_csv(source, _records())
+    whole, chunked = tmp_path / "whole.csv", tmp_path / "chunked.csv"
+    run_batch(str(source), str(whole), chunk_size=1000, progress=False)
+    run_batch(str(source), str(chunked), chunk_size=3, progress=False)
+    # Vectorised arithmetic may differ in the last bits between batch sizes, no more.
+    whole_rows = list(csv.DictReader(io.StringIO(whole.read_text())))
+    chunked_rows = list(csv.DictReader(io.StringIO(chunked.read_text())))
+    assert len(whole_rows) == len(chunked_rows) == len(HOURS)
+    for a, b in zip(whole_rows, chunked_rows):
+        assert a["id"] == b["id"] and a["exposure_category"] == b["exposure_category"]
+        for name in ("solar_zenith_deg", "uv_index", "effective_w_m2.erythema", "uva_w_m2"):
+            assert float(a[name]) == pytest.approx(float(b[name]), rel=1e-9, abs=1e-12)
+
+
+def test_a_bad_file_is_rejected_whole_with_the_problem_on_stderr(tmp_path, capsys):
+    records = _records()
+    records[5]["lat"] = "95"
+    source, target = tmp_path / "bad.csv", tmp_path / "out.csv"
+    _write_csv(source, records)
+    assert run_batch(str(source), str(target), progress=False) == EXIT_INVALID
+    problem = json.loads(capsys.readouterr().err)
+    assert problem["errors"] == [{"index": 5, "id": "h5", "field": "lat", "reason": "must be between -90 and 90"}]
+    assert not target.exists()
+
+
+def test_progress_bar_goes_to_stderr_for_multi_chunk_files(tmp_path):
+    source = tmp_path / "hours.csv"
+    _write_csv(source, _records())
+    done = subprocess.run([sys.executable, "-m", "service.cli", "batch", str(source), "-", "--chunk-size", "5",
+                           "--progress"], cwd=REPO, capture_output=True, text=True, timeout=120)
+    assert done.returncode == 0, done.stderr
+    assert f"{len(HOURS)}/{len(HOURS)}" in done.stderr
+    assert json.loads(done.stdout)["results"][0]["id"] == "h0"
+
+
+@pytest.mark.gunicorn
+def test_serve_runs_gunicorn_and_stops_cleanly_on_sigterm(tmp_path):
+    port = free_loopback_port()
+    env = {**os.environ, "UVDOSE_WORKERS": "1"}
+    env.pop("PROMETHEUS_MULTIPROC_DIR", None)
+    process = subprocess.Popen([sys.executable, "-m", "service.cli", "serve", "--bind", f"127.0.0.1:{port}"],
+                               cwd=tmp_path, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    try:
+        wait_until_answers(f"http://127.0.0.1:{port}/livez", process, timeout_s=60)
+        with urllib.request.urlopen(f"http://127.0.0.1:{port}/readyz", timeout=30) as reply:
+            assert json.load(reply)["status"] in ("ready", "degraded")
+        process.send_signal(signal.SIGTERM)
+        assert process.wait(timeout=40) == 0
+    finally:
+        stop(process)
