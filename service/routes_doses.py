@@ -117,9 +117,10 @@ def _transmittance(options: Mapping[str, Any], default: str | None = None):
 
 
 def _evaluator(spectra, transmittance, label: str, kind: str) -> dose.Evaluator:
-    compute = dose.engine_evaluator(spectra, transmittance=transmittance,
-                                    ozone_resolver=current_app.extensions.get("uvdose_ozone"))
-    context = f"doses:{kind};spectra={','.join(spectra)};glazing={label}"
+    resolver = current_app.extensions.get("uvdose_ozone")
+    compute = dose.engine_evaluator(spectra, transmittance=transmittance, ozone_resolver=resolver)
+    context = (f"doses:{kind};spectra={','.join(spectra)};glazing={label};"
+               f"ozone={getattr(resolver, 'fingerprint', 'default')}")
 
     def evaluate(columns):
         # Samples are built from validated input, so a ValueError inside the engine is
