@@ -139,7 +139,7 @@ def _daytime_batch(size: int) -> bytes:
 
 
 def test_sigterm_during_a_real_batch_still_answers_it_in_full(tmp_path):
-    size = 1000
+    size = 10_000  # the default most records per request; about 1 s of engine time
     body = _daytime_batch(size)
     process, base_url, _, logs = _start(tmp_path, "service.app:create_app()", {"UVDOSE_CACHE": "off"})
     port = int(base_url.rsplit(":", 1)[1])
