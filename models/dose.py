@@ -6,7 +6,10 @@ multiple of ``step_s`` seconds of POSIX time inside the window. Aligning interio
 nodes on a UTC grid means that many windows share sample times, which the solar
 position code evaluates once per distinct time. The rule is exact for irradiance
 constant or linear in time. The sun below the horizon contributes zero because the
-clear-sky model returns exact zeros there.
+clear-sky model returns exact zeros there. At the apparent horizon the model's diffuse
+irradiance steps from zero to a small value (about 2 mW m⁻² erythemal); a window that
+contains that instant is off by at most half a step times that value (≈ 0.5 J m⁻² at
+the 10-minute default), which daily totals avoid by integrating between those instants.
 
 Irradiance comes from an *evaluator*: a function from a dict of per-sample input
 columns (the names of ``models.engine.Conditions``) to a dict of result columns

@@ -240,3 +240,13 @@ def test_default_day_quadrature_on_the_engine_at_a_low_winter_sun():
     for name in ("erythema", "plant_damage"):
         assert default.daily_dose_j_m2[name][0, 0] == pytest.approx(fine.daily_dose_j_m2[name][0, 0], rel=0.005)
     assert default.samples == 8
+
+
+def test_midnight_sun_day_is_integrated_around_the_clock():
+    # Tromsø (69.65 N) at the June solstice: the sun never sets (almanac fact, from
+    # memory), so the day runs transit ± 12 h and still gets a positive dose.
+    season = dose.field_season({"latitude_deg": np.array([69.65]), "longitude_deg": np.array([18.96])},
+                               [1781827200.0], madronich_evaluator, spectra=["erythema"])
+    assert season.sun_state[0, 0] == 1
+    assert season.sunset_unix_s[0, 0] - season.sunrise_unix_s[0, 0] == DAY
+    assert season.daily_dose_j_m2["erythema"][0, 0] > 0.0

@@ -177,3 +177,17 @@ def test_engine_failure_is_a_server_error_not_the_clients(client, monkeypatch):
     monkeypatch.setattr(dose, "engine_evaluator", broken)
     r = _post(client, "/v1/doses/windows", {"records": [WINDOW]})
     assert r.status_code == 500 and r.mimetype == "application/problem+json"
+
+
+def test_geojson_multipoint_gaps_are_excluded_and_reported(client):
+    feature = {"type": "Feature",
+               "geometry": {"type": "MultiPoint", "coordinates": [[p["lon"], p["lat"]] for p in DELIVERY]},
+               "properties": {"id": "van-gaps", "times": [p["time"] for p in DELIVERY],
+                              "gaps": [False, True, False, False]}}
+    r = _post(client, "/v1/doses/routes", {"routes": [feature]})
+    assert r.status_code == 200
+    row = r.get_json()["results"][0]
+    assert (row["id"], row["driving_s"], row["parked_s"], row["gap_s"]) == ("van-gaps", 5100.0, 0.0, 1200.0)
+    bad = dict(feature, properties=dict(feature["properties"], times=feature["properties"]["times"][:2]))
+    r = _post(client, "/v1/doses/routes", {"routes": [bad]})
+    assert r.status_code == 422 and r.get_json()["errors"][0]["field"] == "routes[0].properties.times"
