@@ -18,7 +18,8 @@ in-process LRU with TTL, or none. A failing Redis opens a circuit breaker: the b
 answered from the engine, the fault is logged and counted, and Redis is tried again only
 after a backoff that doubles up to ``UVDOSE_CACHE_RETRY_MAX_S``.
 
-Values are stored compactly: a 16-byte header (layout digest, key check), the numeric
+Values are stored compactly: a 16-byte header (layout digest; a check over the key and
+the contents, so a value is used only for its own cell and only intact), the numeric
 columns as raw float64 bytes (spectral columns ``spectrum_w_m2_nm.*`` as float32) and the
 string columns as fixed-width UTF-8. Results just computed pass through the same encoding
 before they are returned, so a miss and a later hit return identical numbers.
@@ -221,11 +222,17 @@ class _Layout:
         return _digest(self.to_json())
 
 
-def _encode(results: Mapping[str, np.ndarray], checks: np.ndarray) -> tuple[_Layout, list[bytes]]:
-    """Serialise M cells of engine output to M values sharing one layout."""
+def _value_checks(key_rows: np.ndarray, payload: np.ndarray) -> np.ndarray:
+    """The check stored in each value: over its key and its payload, so a value is only
+    used for the cell it was written for and only as it was written."""
+    return _row_checks(np.hstack([key_rows, payload]))
+
+
+def _encode(results: Mapping[str, np.ndarray], key_rows: np.ndarray) -> tuple[_Layout, list[bytes]]:
+    """Serialise M cells of engine output (their key rows given) to M values sharing one layout."""
     fields: list[tuple[str, str, str, int]] = []
     blocks: list[np.ndarray] = []
-    count = len(checks)
+    count = len(key_rows)
     for name in sorted(results):
         column = np.asarray(results[name])
         if column.shape[:1] != (count,):
@@ -245,10 +252,11 @@ def _encode(results: Mapping[str, np.ndarray], checks: np.ndarray) -> tuple[_Lay
         fields.append((name, column.dtype.str, stored.newbyteorder("<").str + f"x{data.shape[1]}", data.nbytes // max(count, 1)))
         blocks.append(data.view(np.uint8).reshape(count, -1))
     layout = _Layout(tuple(fields))
+    payload = np.hstack(blocks) if blocks else np.zeros((count, 0), dtype=np.uint8)
     header = np.empty((count, _HEADER_BYTES), dtype=np.uint8)
     header[:, :8] = np.frombuffer(layout.digest, dtype=np.uint8)
-    header[:, 8:] = checks.astype("<u8").view(np.uint8).reshape(count, 8)
-    matrix = np.ascontiguousarray(np.hstack([header, *blocks]))
+    header[:, 8:] = _value_checks(key_rows, payload).astype("<u8").view(np.uint8).reshape(count, 8)
+    matrix = np.ascontiguousarray(np.hstack([header, payload]))
     return layout, _split_rows(matrix)
 
 
@@ -262,10 +270,15 @@ def _split_rows(matrix: np.ndarray) -> list[bytes]:
     return [row[:-1] for row in rows]
 
 
-def _decode(layout: _Layout, values: list[bytes]) -> Columns:
-    """Inverse of :func:`_encode` for values already checked to have ``layout``."""
-    count = len(values)
-    matrix = np.frombuffer(b"".join(values), dtype=np.uint8).reshape(count, layout.value_bytes)
+def _decode(layout: _Layout, values: list[bytes], key_rows: np.ndarray) -> tuple[np.ndarray, Columns]:
+    """Inverse of :func:`_encode` for values of ``layout`` read for ``key_rows``.
+
+    Returns the mask of values whose check holds and the columns of those values."""
+    matrix = np.frombuffer(b"".join(values), dtype=np.uint8).reshape(len(values), layout.value_bytes)
+    stored_checks = np.ascontiguousarray(matrix[:, 8:_HEADER_BYTES]).view("<u8").reshape(-1)
+    sound = stored_checks == _value_checks(key_rows, matrix[:, _HEADER_BYTES:])
+    matrix = matrix[sound]
+    count = len(matrix)
     offset = _HEADER_BYTES
     columns: Columns = {}
     for name, kind, stored, width in layout.fields:
@@ -278,7 +291,7 @@ def _decode(layout: _Layout, values: list[bytes]) -> Columns:
             dtype_str, per_row = stored.split("x")
             data = block.view(np.dtype(dtype_str)).reshape(count, int(per_row)).astype(np.dtype(kind))
             columns[name] = data.reshape(count) if int(per_row) == 1 else data
-    return columns
+    return sound, columns
 
 
 class _Breaker:
@@ -489,7 +502,7 @@ class GridCellCache:
         cell share one engine run on the cell-centre inputs; ``compute`` is called once, on
         the cells not found in the backend.
         """
-        if self.store is None:
+        if self.store is None or not columns or len(next(iter(columns.values()))) == 0:
             return compute(dict(columns))
         quantised = self.grid.quantise(columns)
         if quantised is None:
@@ -501,10 +514,9 @@ class GridCellCache:
         inverse = inverse.reshape(-1)
         cell_rows = keys_matrix[first]
         keys = _split_rows(cell_rows)
-        checks = _row_checks(cell_rows)
         cell_inputs = {name: value[first] for name, value in centres.items()}
 
-        cached = self._fetch(keys, checks)
+        cached = self._fetch(keys)
         if cached is None:
             missing = np.ones(len(keys), dtype=bool)
         else:
@@ -514,20 +526,23 @@ class GridCellCache:
 
         parts: list[tuple[np.ndarray, Columns]] = []
         if len(hit_at):
-            parts.extend(self._decode_hits([cached[i] for i in hit_at], hit_at))
+            try:
+                parts, unsound = self._decode_hits([cached[i] for i in hit_at], hit_at, cell_rows)
+            except Exception as error:  # a value that passed its checks but will not decode
+                log.warning("cached cells would not decode (%s: %s); recomputing them", type(error).__name__, error)
+                parts, unsound = [], hit_at
+            if len(unsound):
+                self._count(error=1)
+                miss_at = np.sort(np.concatenate([miss_at, unsound]))
+                hit_at = np.setdiff1d(hit_at, unsound)
         if len(miss_at):
-            fresh = compute({name: value[miss_at] for name, value in cell_inputs.items()})
-            layout, values = _encode(fresh, checks[miss_at])
-            self._layouts[layout.digest] = layout
-            parts.append((miss_at, _decode(layout, values)))
-            self._store([keys[i] for i in miss_at], values, layout)
-        names = set(parts[0][1]) if parts else set()
+            parts.append((miss_at, self._computed(compute, cell_inputs, miss_at, cell_rows, keys)))
+        names = set(parts[0][1])
         if any(set(p[1]) != names for p in parts):
             # Cached cells of another column set (not expected for one context): recompute all.
             log.warning("cached cells disagree with the engine's columns; recomputing the batch")
-            everything = compute(cell_inputs)
-            layout, values = _encode(everything, checks)
-            parts = [(np.arange(len(keys)), _decode(layout, values))]
+            everything = np.arange(len(keys))
+            parts = [(everything, self._computed(compute, cell_inputs, everything, cell_rows, keys))]
         self._count(hit=len(hit_at), miss=len(miss_at))
         return _assemble(parts, len(keys), inverse)
 
@@ -563,7 +578,16 @@ class GridCellCache:
             blocks.append(np.ascontiguousarray(indices[name].astype(indices[name].dtype.newbyteorder("<"))).view(np.uint8).reshape(count, -1))
         return np.ascontiguousarray(np.hstack(blocks))
 
-    def _fetch(self, keys: list[bytes], checks: np.ndarray) -> list[bytes | None] | None:
+    def _computed(self, compute: ComputeFn, cell_inputs: Columns, at: np.ndarray,
+                  cell_rows: np.ndarray, keys: list[bytes]) -> Columns:
+        """Run the engine on cells ``at``, store them, return them as a hit would."""
+        fresh = compute({name: value[at] for name, value in cell_inputs.items()})
+        layout, values = _encode(fresh, cell_rows[at])
+        self._layouts[layout.digest] = layout
+        self._store([keys[i] for i in at], values, layout)
+        return _decode(layout, values, cell_rows[at])[1]
+
+    def _fetch(self, keys: list[bytes]) -> list[bytes | None] | None:
         """Values for ``keys`` (None where absent or unusable), or None if the backend failed."""
         if not self.breaker.allow():
             return None
@@ -581,33 +605,23 @@ class GridCellCache:
             self._fault(error)
             return None
         self.breaker.success()
-        return self._checked(values, checks)
-
-    def _checked(self, values: list[bytes | None], checks: np.ndarray) -> list[bytes | None]:
-        """Keep only values whose layout is known, whose size fits it and whose key check
-        matches their key; anything else counts as absent."""
+        # A value of unknown layout or of the wrong size counts as absent.
         sizes = {digest: layout.value_bytes for digest, layout in self._layouts.items()}
-        expected = checks.astype("<u8").tolist()
-        usable: list[bytes | None] = []
-        for value, check in zip(values, expected):
-            if (
-                value is None
-                or sizes.get(value[:8]) != len(value)
-                or int.from_bytes(value[8:16], "little") != check
-            ):
-                usable.append(None)
-            else:
-                usable.append(value)
-        return usable
+        return [v if v is not None and sizes.get(v[:8]) == len(v) else None for v in values]
 
-    def _decode_hits(self, values: list[bytes], positions: np.ndarray) -> list[tuple[np.ndarray, Columns]]:
+    def _decode_hits(self, values: list[bytes], positions: np.ndarray,
+                     cell_rows: np.ndarray) -> tuple[list[tuple[np.ndarray, Columns]], np.ndarray]:
+        """Decoded hits grouped by layout, and the positions whose check failed."""
         by_layout: dict[bytes, list[int]] = {}
         for index, value in enumerate(values):
             by_layout.setdefault(value[:8], []).append(index)
-        return [
-            (positions[members], _decode(self._layouts[digest], [values[i] for i in members]))
-            for digest, members in by_layout.items()
-        ]
+        parts, unsound = [], []
+        for digest, members in by_layout.items():
+            at = positions[members]
+            sound, columns = _decode(self._layouts[digest], [values[i] for i in members], cell_rows[at])
+            parts.append((at[sound], columns))
+            unsound.append(at[~sound])
+        return parts, np.concatenate(unsound)
 
     def _store(self, keys: list[bytes], values: list[bytes], layout: _Layout) -> None:
         if not self.breaker.allow():

@@ -233,6 +233,12 @@ def test_infinite_input_bypasses_the_cache_so_the_engine_can_name_it():
     assert np.isinf(seen[0]["ozone_du"][3]) and len(seen[0]["ozone_du"]) == 10
 
 
+def test_an_empty_batch_goes_to_the_engine_without_a_fault(any_cache):
+    empty = {name: value[:0] for name, value in batch(10, cells=2).items()}
+    result = any_cache.compute_through(empty, RecordingEngine(), CONTEXT)
+    assert len(result["uv_index"]) == 0 and any_cache.stats["error"] == 0
+
+
 # -- expiry and bounds -------------------------------------------------------------------
 
 def test_redis_entries_expire_after_the_ttl(redis_client):
@@ -338,6 +344,20 @@ def test_a_corrupt_or_misplaced_value_is_recomputed_not_served(redis_client):
     redis_client.set(keys[2], values[2][:-3])
     result = cache.compute_through(columns, engine, CONTEXT)
     assert engine.calls == [3, 3]
+    assert_same(result, expected(cache, columns))
+
+
+def test_a_value_corrupted_in_the_store_is_recomputed_not_served(redis_client):
+    engine = RecordingEngine()
+    columns = batch(60, cells=3, seed=8)
+    cache = GridCellCache("redis", redis_url=_url_of(redis_client))
+    cache.compute_through(columns, engine, CONTEXT)
+    key = sorted(redis_client.keys(b"uvdose:c:*"))[0]
+    value = bytearray(redis_client.get(key))
+    value[-1] ^= 0x01  # one flipped bit in the last number; header and size intact
+    redis_client.set(key, bytes(value))
+    result = cache.compute_through(columns, engine, CONTEXT)
+    assert engine.calls == [3, 1] and cache.stats["error"] == 1
     assert_same(result, expected(cache, columns))
 
 
