@@ -387,6 +387,8 @@ _ROUTE_OPTIONS = RouteOptionsSchema()
 _ROUTE_CONDITIONS = {"ozone_du": (50, 700), "cloud_factor": (0, 1.5), "surface_albedo": (0, 1),
                      "aod_550": (0, 5), "elevation_m": (-500, 9000)}
 _ROUTE_CONDITION_COLUMNS = {"cloud_factor": "cloud_modification_factor"}
+_ROUTE_KEYS = {"id", "points", *_ROUTE_CONDITIONS}
+_POINT_KEYS = {"time", "lat", "lon", "stop", "gap"}
 
 
 def _route_arrays(index: int, route: Any, errors: list[FieldError]):
@@ -422,6 +424,12 @@ def _route_arrays(index: int, route: Any, errors: list[FieldError]):
         points = route.get("points")
         if not isinstance(points, list) or not all(isinstance(p, dict) for p in points):
             err(".points", "must be an array of {time, lat, lon} objects")
+            return None
+        unknown = sorted(set(route) - _ROUTE_KEYS) + [
+            f"points.{k}" for k in sorted(set().union(*points) - _POINT_KEYS)]
+        if unknown:
+            err(f".{unknown[0]}", "is not a field of a route" if "." not in unknown[0]
+                else "is not a field of a route point")
             return None
         times = [p.get("time") for p in points]
         try:

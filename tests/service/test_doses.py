@@ -191,3 +191,11 @@ def test_geojson_multipoint_gaps_are_excluded_and_reported(client):
     bad = dict(feature, properties=dict(feature["properties"], times=feature["properties"]["times"][:2]))
     r = _post(client, "/v1/doses/routes", {"routes": [bad]})
     assert r.status_code == 422 and r.get_json()["errors"][0]["field"] == "routes[0].properties.times"
+
+
+def test_route_typos_are_errors_not_ignored(client):
+    r = _post(client, "/v1/doses/routes", {"routes": [{"id": "v", "cloud_facter": 0.5, "points": DELIVERY}]})
+    assert r.status_code == 422 and r.get_json()["errors"][0]["field"] == "routes[0].cloud_facter"
+    points = [dict(DELIVERY[0], latitude=1.0)] + DELIVERY[1:]
+    r = _post(client, "/v1/doses/routes", {"routes": [{"id": "v", "points": points}]})
+    assert r.status_code == 422 and r.get_json()["errors"][0]["field"] == "routes[0].points.latitude"
