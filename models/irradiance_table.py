@@ -82,6 +82,9 @@ DEFAULT_AEROSOL_TYPE = (optics.DEFAULT_ANGSTROM_EXPONENT,
 
 _LOG_FLOOR = 1e-300
 
+CHUNK_RECORDS = 2048
+"""Records interpolated per block (working set about 1 MB per (records, W) array)."""
+
 
 def air_mass_coordinate(solar_zenith_deg, beam_air_mass=None) -> np.ndarray:
     """Air-column-weighted pseudo-spherical beam air mass, (N,): the zenith axis variable.
@@ -296,16 +299,20 @@ def relative_surface_flux(solar_zenith_deg, ozone_du, pressure_hpa, surface_albe
                              [zenith_direct, pressure_axis, aod_axis])
     spherical = interpolate(table.spherical_albedo, [ozone_axis, pressure_axis, aod_axis])
 
-    mu0 = np.cos(np.deg2rad(zenith))
-    log_direct_full = log_direct - ozone[:, None] * ozone_slant_optical_depth_per_du(layer_air_mass)
-    direct = mu0[:, None] * np.exp(log_direct_full)
-    global_black = np.exp(log_global.astype(np.float64))
+    # Elementwise work in float32: the table holds float32, and the interpolation error
+    # (~0.5 %) is far above float32 rounding.
+    mu0 = np.cos(np.deg2rad(zenith)).astype(np.float32)[:, None]
+    ozone_slant = ozone_slant_optical_depth_per_du(layer_air_mass).astype(np.float32)
+    log_direct -= ozone.astype(np.float32)[:, None] * ozone_slant
+    direct = np.exp(log_direct, out=log_direct)
+    direct *= mu0
+    global_black = np.exp(log_global, out=log_global)
     # The interpolated global can dip under the interpolated beam only where the diffuse
     # share is below the interpolation error; it is then taken as no diffuse light.
-    diffuse_black = np.maximum(global_black - direct, 0.0)
-    albedo = np.asarray(surface_albedo, dtype=float)
+    diffuse_black = np.maximum(global_black - direct, 0.0, out=global_black)
+    albedo = np.asarray(surface_albedo, dtype=np.float32)
     albedo = albedo[:, None] if albedo.ndim == 1 else albedo
-    return apply_surface_albedo(direct, diffuse_black, spherical.astype(np.float64), albedo)
+    return apply_surface_albedo(direct, diffuse_black, spherical, albedo)
 
 
 def _out_of_range_message(record, zenith, ozone, pressure, aod, alpha, ssa, g):
@@ -353,19 +360,21 @@ def spectral_irradiance(solar_zenith_deg, earth_sun_distance_au, ozone_du, press
                                                alpha[i], ssa[i], g[i]))
 
     scale = extraterrestrial_spectrum_w_m2_nm()[None, :] / (distance[:, None] ** 2)
-    if n == 0:
-        return np.zeros((0, WAVELENGTH_NM.size)), np.zeros((0, WAVELENGTH_NM.size))
-    if covered.all():  # the common case: no row shuffling
-        direct, diffuse = relative_surface_flux(zenith, ozone, pressure, albedo, aod)
-        return direct * scale, diffuse * scale
     direct = np.zeros((n, WAVELENGTH_NM.size))
     diffuse = np.zeros((n, WAVELENGTH_NM.size))
     rows = np.flatnonzero(covered)
-    if rows.size:
-        d, f = relative_surface_flux(zenith[rows], ozone[rows], pressure[rows], albedo[rows],
-                                     aod[rows])
-        direct[rows] = d * scale[rows]
-        diffuse[rows] = f * scale[rows]
+    every_row = rows.size == n
+    # Blocks of CHUNK_RECORDS keep the (records, W) temporaries in cache and bound memory.
+    for start in range(0, rows.size, CHUNK_RECORDS):
+        block = slice(start, start + CHUNK_RECORDS) if every_row else rows[start:start + CHUNK_RECORDS]
+        d, f = relative_surface_flux(zenith[block], ozone[block], pressure[block], albedo[block],
+                                     aod[block])
+        if every_row:
+            np.multiply(d, scale[block], out=direct[block])
+            np.multiply(f, scale[block], out=diffuse[block])
+        else:
+            direct[block] = d * scale[block]
+            diffuse[block] = f * scale[block]
     if uncovered.size:
         solved = direct_solve(zenith[uncovered], distance[uncovered], ozone[uncovered],
                               pressure[uncovered], albedo[uncovered], aod[uncovered],

@@ -227,7 +227,8 @@ def apply_surface_albedo(direct_horizontal, diffuse_down_black_surface, spherica
     back down, and the geometric series sums to the factor above. The direct beam does
     not change; the extra light is diffuse. Returns ``(direct_horizontal, diffuse_down)``.
     """
-    albedo = np.asarray(albedo, dtype=np.float64)
+    # Computed in the fluxes' precision (float32 from the table, float64 from the solver).
+    albedo = np.asarray(albedo, dtype=np.result_type(direct_horizontal, np.float32))
     if np.any((albedo < 0) | (albedo > 1)):
         raise ValueError("surface albedo must lie in [0, 1]")
     global_black = direct_horizontal + diffuse_down_black_surface
