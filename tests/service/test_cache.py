@@ -239,6 +239,14 @@ def test_an_empty_batch_goes_to_the_engine_without_a_fault(any_cache):
     assert len(result["uv_index"]) == 0 and any_cache.stats["error"] == 0
 
 
+def test_distinct_rows_survive_a_check_collision(monkeypatch):
+    matrix = np.array([[1, 2], [3, 4], [1, 2], [5, 6]], dtype=np.uint8)
+    monkeypatch.setattr(cache_module, "_row_checks", lambda rows: np.zeros(len(rows), dtype=np.uint64))
+    first, inverse = cache_module._distinct_rows(matrix)
+    np.testing.assert_array_equal(matrix[first][inverse], matrix)
+    assert len(first) == 3
+
+
 # -- expiry and bounds -------------------------------------------------------------------
 
 def test_redis_entries_expire_after_the_ttl(redis_client):
