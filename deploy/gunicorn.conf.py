@@ -101,8 +101,11 @@ logconfig_dict = {
     "version": 1,
     "disable_existing_loggers": False,
     "formatters": {"json": {"()": "service.request_log.JsonLogFormatter"}},
+    # gunicorn names client addresses and request URIs in some messages: redact them.
+    "filters": {"redact": {"()": "service.request_log.ServerLogRedaction"}},
     "handlers": {
-        "stderr": {"class": "logging.StreamHandler", "formatter": "json", "stream": "ext://sys.stderr"},
+        "stderr": {"class": "logging.StreamHandler", "formatter": "json", "stream": "ext://sys.stderr",
+                   "filters": ["redact"]},
     },
     "root": {"level": loglevel.upper(), "handlers": ["stderr"]},
     "loggers": {

@@ -86,6 +86,26 @@ class JsonLogFormatter(logging.Formatter):
         return json.dumps(line, separators=(",", ":"), default=str)
 
 
+class ServerLogRedaction(logging.Filter):
+    """Strip client addresses and query strings from gunicorn's own messages.
+
+    gunicorn logs a refused request as ``Invalid request from ip=<address>: <error>``
+    and a failed one as ``Error handling request <method> <uri>``; the address is
+    personal data and a query string may carry coordinates. The message is rendered,
+    then ``ip=<address>`` and every ``?<query>`` are replaced by ``<redacted>``.
+    """
+
+    _ADDRESS = re.compile(r"\bip=\S*?(?=: |[,\s]|$)")
+    _QUERY = re.compile(r"\?[^\s'\"]*")
+
+    def filter(self, record: logging.LogRecord) -> bool:
+        message = record.getMessage()
+        redacted = self._QUERY.sub("?<redacted>", self._ADDRESS.sub("ip=<redacted>", message))
+        if redacted != message:
+            record.msg, record.args = redacted, None
+        return True
+
+
 def current_request_id() -> str | None:
     """The id of the request being served, or None outside a request."""
     if has_request_context():

@@ -5,6 +5,7 @@ import http.client
 import json
 import os
 import signal
+import socket
 import subprocess
 import sys
 import threading
@@ -101,6 +102,10 @@ def test_sigterm_lets_the_in_flight_request_finish_and_exits_cleanly(tmp_path):
         bind = base_url.removeprefix("http://")
         assert _run_healthcheck(bind) == 0
         assert _run_healthcheck(f"127.0.0.1:{free_loopback_port()}") != 0
+        # A request gunicorn itself refuses: its log line must not name the client or query.
+        with socket.create_connection(("127.0.0.1", int(base_url.rsplit(":", 1)[1])), timeout=5) as raw:
+            raw.sendall(b"GET /livez?lat=47.123456&lon=8.654321 HTTP/1.1\r\nHost: x\r\nno colon here\r\n\r\n")
+            assert raw.recv(64).startswith(b"HTTP/1.1 400")
         client = threading.Thread(target=hold)
         client.start()
         deadline = time.monotonic() + 10
@@ -126,6 +131,10 @@ def test_sigterm_lets_the_in_flight_request_finish_and_exits_cleanly(tmp_path):
     messages = [line.get("message", "") for line in server_lines]
     assert any("Handling signal: term" in m for m in messages)
     assert any("Shutting down: Master" in m for m in messages)
+    refused = [m for m in messages if m.startswith("Invalid request from")]
+    assert refused and all("ip=<redacted>" in m for m in refused)
+    stderr_text = (tmp_path / "stderr.log").read_text()
+    assert "47.123456" not in stderr_text and "ip=127.0.0.1" not in stderr_text
     # The metrics directory the config made for itself is gone with the server.
     assert not list(private_tmp.glob("uvdose-metrics-*"))
 

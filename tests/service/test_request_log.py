@@ -7,7 +7,13 @@ import pytest
 from flask import g, jsonify, request
 
 from service.app import create_app
-from service.request_log import REQUEST_ID_HEADER, REQUEST_ID_MAX_LENGTH, LogSettingsError, json_handler
+from service.request_log import (
+    REQUEST_ID_HEADER,
+    REQUEST_ID_MAX_LENGTH,
+    LogSettingsError,
+    ServerLogRedaction,
+    json_handler,
+)
 
 # Values of an invented delivery-depot scenario; they must never reach a log line.
 SECRET_LAT, SECRET_LON, SECRET_ID = "47.123456", "8.654321", "van-0042-kessler"
@@ -173,3 +179,22 @@ def test_log_level_applies_to_request_lines(capsys):
     client.post("/v1/test-batch", json={"records": []})  # 200: an info line, filtered
     lines = _lines(capsys.readouterr().out)
     assert [line["status"] for line in lines] == [404]
+
+
+@pytest.mark.parametrize(
+    "message, args, expected",
+    [
+        # Message shapes of gunicorn 27 (gunicorn/workers/base.py, handle_error).
+        ("Invalid request from ip=%s: %s", ("203.0.113.7", "Invalid HTTP Header: 'X Y'"),
+         "Invalid request from ip=<redacted>: Invalid HTTP Header: 'X Y'"),
+        ("Invalid request from ip=%s: %s", ("2001:db8::17", "Invalid HTTP method"),
+         "Invalid request from ip=<redacted>: Invalid HTTP method"),
+        ("Error handling request %s %s", ("POST", f"/v1/irradiance?lat={SECRET_LAT}&lon={SECRET_LON}"),
+         "Error handling request POST /v1/irradiance?<redacted>"),
+        ("Booting worker with pid: %s", (4242,), "Booting worker with pid: 4242"),
+    ],
+)
+def test_server_messages_lose_client_addresses_and_query_strings(message, args, expected):
+    record = logging.LogRecord("gunicorn.error", logging.WARNING, __file__, 1, message, args, None)
+    assert ServerLogRedaction().filter(record) is True
+    assert record.getMessage() == expected
