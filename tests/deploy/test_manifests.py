@@ -109,6 +109,19 @@ def test_dockerfile_copy_sources_exist_in_the_build_context(dockerfile):
                 assert (ROOT / source).exists(), f"COPY {source}: not in the repository"
 
 
+def test_build_context_filter_lets_exactly_the_copied_sources_through(dockerfile):
+    lines = [line.strip() for line in (DEPLOY / "Dockerfile.dockerignore").read_text().splitlines()]
+    rules = [line for line in lines if line and not line.startswith("#")]
+    assert rules[0] == "*", "allow-list: exclude everything, then admit what the image copies"
+    admitted = {rule[1:].rstrip("/") for rule in rules if rule.startswith("!")}
+    copied = set()
+    for _, instructions in dockerfile:
+        for keyword, args in instructions:
+            if keyword == "COPY" and "--from=" not in args:
+                copied |= {part.rstrip("/") for part in args.split()[:-1] if not part.startswith("--")}
+    assert admitted == copied
+
+
 def test_runtime_stage_runs_as_a_numeric_non_root_user(runtime):
     users = [args for keyword, args in runtime if keyword == "USER"]
     assert users, "the runtime stage must set USER"
