@@ -599,16 +599,22 @@ class GridCellCache:
         return self.grid.cell_centres(columns)
 
     def status(self) -> dict[str, Any]:
-        """Backend, whether it answers now, breaker state and lookup counts (for /readyz)."""
+        """Backend, whether it answers now, breaker state and lookup counts (for /readyz).
+
+        The probe goes through the breaker like a batch: while it is open the backend is
+        not asked; once the backoff has passed the probe itself may close it again."""
         state: dict[str, Any] = {"backend": self.backend, **self.stats}
         if self.store is None:
             return {**state, "answers": False, "breaker": "closed"}
-        if self.breaker.is_open:
+        if not self.breaker.allow():
             return {**state, "answers": False, "breaker": "open", "retry_in_s": round(self.breaker.retry_in_s(), 3)}
         try:
-            answers = self._timed(self.store.ping)
-        except Exception:  # the cache is optional; a failed probe is a state, not an error
-            answers = False
+            answers = bool(self._timed(self.store.ping))
+        except Exception as error:  # the cache is optional; a failed probe is a state, not an error
+            self._fault(error)
+            return {**state, "error": state["error"] + 1, "answers": False, "breaker": "open",
+                    "retry_in_s": round(self.breaker.retry_in_s(), 3)}
+        self.breaker.success()
         return {**state, "answers": answers, "breaker": "closed"}
 
     # -- internals -----------------------------------------------------------------------

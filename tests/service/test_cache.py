@@ -8,6 +8,7 @@ context shows up as a wrong number. Accuracy against the real engine is in
 """
 from __future__ import annotations
 
+import threading
 import time
 
 import numpy as np
@@ -247,6 +248,28 @@ def test_distinct_rows_survive_a_check_collision(monkeypatch):
     assert len(first) == 3
 
 
+def test_threads_sharing_one_cache_each_get_their_own_records(any_cache):
+    # gunicorn's threaded workers share one cache object per process.
+    batches = [batch(300, cells=30, seed=seed % 3) for seed in range(6)]
+    references = [expected(any_cache, columns) for columns in batches]
+    failures = []
+
+    def work(number: int) -> None:
+        try:
+            for _ in range(5):
+                assert_same(any_cache.compute_through(batches[number], RecordingEngine(), CONTEXT), references[number])
+        except AssertionError as error:  # reported from the main thread below
+            failures.append(error)
+
+    threads = [threading.Thread(target=work, args=(n,)) for n in range(len(batches))]
+    for thread in threads:
+        thread.start()
+    for thread in threads:
+        thread.join()
+    assert not failures
+    assert any_cache.stats["hit"] > 0
+
+
 # -- expiry and bounds -------------------------------------------------------------------
 
 def test_redis_entries_expire_after_the_ttl(redis_client):
@@ -411,10 +434,20 @@ def test_status_reports_backend_and_whether_it_answers(redis_client):
                                              "answers": False, "breaker": "closed"}
 
 
-def test_counts_reach_the_prometheus_counters():
+def test_counts_and_latency_reach_the_prometheus_metrics(redis_client):
+    from prometheus_client import REGISTRY
+
     from service import metrics
+
+    def observed() -> float:
+        return REGISTRY.get_sample_value("uvdose_cache_operation_duration_seconds_count") or 0.0
 
     before = metrics.CACHE_EVENTS.labels(event="miss")._value.get()
     GridCellCache("memory").compute_through(batch(30, cells=3), RecordingEngine(), CONTEXT)
     assert metrics.CACHE_EVENTS.labels(event="miss")._value.get() - before == 3
+    cache = GridCellCache("redis", redis_url=_url_of(redis_client))
+    cache.status()
+    latencies_before = observed()
+    cache.compute_through(batch(30, cells=3), RecordingEngine(), CONTEXT)
+    assert observed() - latencies_before == 2  # one read, one write
     assert cache_module.log.name == "uvdose.cache"

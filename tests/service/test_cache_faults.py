@@ -111,6 +111,19 @@ def test_stopped_then_restarted_server(throwaway_redis):
     assert cache.status()["answers"] is True
 
 
+def test_readiness_probe_sees_the_outage_and_the_recovery_without_traffic(throwaway_redis):
+    cache = GridCellCache("redis", redis_url=throwaway_redis.url, **FAST)
+    assert cache.status()["answers"] is True
+    throwaway_redis.stop()
+    down = cache.status()
+    assert down["answers"] is False and down["breaker"] == "open" and down["error"] == 1
+    assert cache.status()["error"] == 1  # within the backoff Redis is not asked again
+    throwaway_redis.start()
+    time.sleep(FAST["retry_initial_s"] + 0.05)
+    up = cache.status()
+    assert up["answers"] is True and up["breaker"] == "closed"
+
+
 def test_restarts_during_a_load_of_many_batches(throwaway_redis):
     engine = RecordingEngine()
     cache = GridCellCache("redis", redis_url=throwaway_redis.url, **FAST)
