@@ -60,3 +60,12 @@ def test_cache_helpers_feed_the_cache_metrics(client):
 def test_an_unknown_cache_event_is_refused():
     with pytest.raises(ValueError, match="hit"):
         metrics.count_cache("evicted")
+
+
+def test_computed_records_are_counted_per_route(client):
+    key = ("uvdose_records_computed_total", (("route", "/v1/irradiance"),))
+    before = _scrape(client).get(key, 0.0)
+    records = [{"time": "2026-06-21T12:00:00Z", "lat": 44.0 + i, "lon": 4.9} for i in range(4)]
+    assert client.post("/v1/irradiance", json={"records": records}).status_code == 200
+    assert client.post("/v1/irradiance", json={"records": [{**records[0], "lat": 99}]}).status_code == 422
+    assert _scrape(client)[key] == before + 4  # rejected batches compute nothing
