@@ -167,7 +167,8 @@ def compute_table() -> dict[str, np.ndarray]:
                             + parts.diffuse_down_black_surface).reshape(n_a, n_z, n_w)
             log_direct[:, i_o, i_p] = (np.log(np.maximum(direct, _LOG_FLOOR)).transpose(1, 0, 2)
                                        + ozone_du * ozone_slant[:, None, :])
-            log_global[:, i_o, i_p] = np.log(np.maximum(global_black, _LOG_FLOOR)).transpose(1, 0, 2)
+            log_global[:, i_o, i_p] = np.log(
+                np.maximum(global_black, _LOG_FLOOR)).transpose(1, 0, 2)
             spherical[i_o, i_p] = parts.spherical_albedo.reshape(n_a, n_z, n_w)[:, 0]
     # Identical for every ozone node up to rounding (and the log floor); keep one.
     return {"log_direct_ozone_free": log_direct[:, 0].astype(np.float32),
@@ -183,18 +184,27 @@ class IrradianceTable:
     spherical_albedo: np.ndarray        # (O, P, A, W)
     fingerprint: str
     air_mass_nodes: np.ndarray          # (Z,)
+    # The same arrays as (cells, W) rows with the zenith axis innermost, so that the
+    # neighbouring zenith rows one record needs sit next to each other in memory.
+    global_cells: np.ndarray            # (O*P*A*Z, W)
+    direct_cells: np.ndarray            # (P*A*Z, W)
 
 
 @lru_cache(maxsize=1)
 def load_table(path: Path = TABLE_FILE) -> IrradianceTable:
     """Read the table file once per process."""
     with np.load(path, allow_pickle=False) as data:
+        log_direct = data["log_direct_ozone_free"]
+        log_global = data["log_global_black"]
+        n_w = log_global.shape[-1]
         return IrradianceTable(
-            log_direct_ozone_free=data["log_direct_ozone_free"],
-            log_global_black=data["log_global_black"],
+            log_direct_ozone_free=log_direct,
+            log_global_black=log_global,
             spherical_albedo=data["spherical_albedo"],
             fingerprint=str(data["fingerprint"]),
             air_mass_nodes=air_mass_coordinate(ZENITH_NODES_DEG),
+            global_cells=np.ascontiguousarray(np.moveaxis(log_global, 0, 3)).reshape(-1, n_w),
+            direct_cells=np.ascontiguousarray(np.moveaxis(log_direct, 0, 2)).reshape(-1, n_w),
         )
 
 
@@ -290,14 +300,11 @@ def relative_surface_flux(solar_zenith_deg, ozone_du, pressure_hpa, surface_albe
     pressure_axis = _linear_axis(PRESSURE_NODES_HPA, pressure)
     aod_axis = _linear_axis(AOD_NODES, aod)
 
-    def interpolate(array, axes):
-        return _corner_weights(axes) @ array.reshape(-1, array.shape[-1])
-
-    log_global = interpolate(table.log_global_black,
-                             [zenith_global, ozone_axis, pressure_axis, aod_axis])
-    log_direct = interpolate(table.log_direct_ozone_free,
-                             [zenith_direct, pressure_axis, aod_axis])
-    spherical = interpolate(table.spherical_albedo, [ozone_axis, pressure_axis, aod_axis])
+    log_global = (_corner_weights([ozone_axis, pressure_axis, aod_axis, zenith_global])
+                  @ table.global_cells)
+    log_direct = _corner_weights([pressure_axis, aod_axis, zenith_direct]) @ table.direct_cells
+    spherical = (_corner_weights([ozone_axis, pressure_axis, aod_axis])
+                 @ table.spherical_albedo.reshape(-1, table.spherical_albedo.shape[-1]))
 
     # Elementwise work in float32: the table holds float32, and the interpolation error
     # (~0.5 %) is far above float32 rounding.
@@ -359,22 +366,28 @@ def spectral_irradiance(solar_zenith_deg, earth_sun_distance_au, ozone_du, press
         raise ValueError(_out_of_range_message(i, zenith[i], ozone[i], pressure[i], aod[i],
                                                alpha[i], ssa[i], g[i]))
 
-    scale = extraterrestrial_spectrum_w_m2_nm()[None, :] / (distance[:, None] ** 2)
-    direct = np.zeros((n, WAVELENGTH_NM.size))
-    diffuse = np.zeros((n, WAVELENGTH_NM.size))
+    top_of_atmosphere = extraterrestrial_spectrum_w_m2_nm().astype(np.float32)[None, :]
+    inverse_distance_squared = 1.0 / distance ** 2
     rows = np.flatnonzero(covered)
     every_row = rows.size == n
+    make = np.empty if every_row else np.zeros  # every row written, or zeros for the rest
+    direct = make((n, WAVELENGTH_NM.size))
+    diffuse = make((n, WAVELENGTH_NM.size))
     # Blocks of CHUNK_RECORDS keep the (records, W) temporaries in cache and bound memory.
     for start in range(0, rows.size, CHUNK_RECORDS):
-        block = slice(start, start + CHUNK_RECORDS) if every_row else rows[start:start + CHUNK_RECORDS]
+        stop = start + CHUNK_RECORDS
+        block = slice(start, stop) if every_row else rows[start:stop]
         d, f = relative_surface_flux(zenith[block], ozone[block], pressure[block], albedo[block],
                                      aod[block])
+        d *= top_of_atmosphere
+        f *= top_of_atmosphere
+        factor = inverse_distance_squared[block, None]
         if every_row:
-            np.multiply(d, scale[block], out=direct[block])
-            np.multiply(f, scale[block], out=diffuse[block])
+            np.multiply(d, factor, out=direct[block])
+            np.multiply(f, factor, out=diffuse[block])
         else:
-            direct[block] = d * scale[block]
-            diffuse[block] = f * scale[block]
+            direct[block] = d * factor
+            diffuse[block] = f * factor
     if uncovered.size:
         solved = direct_solve(zenith[uncovered], distance[uncovered], ozone[uncovered],
                               pressure[uncovered], albedo[uncovered], aod[uncovered],

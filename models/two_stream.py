@@ -99,7 +99,8 @@ def _check_inputs(tau, ssa, g, mu0, beam_air_mass):
         raise ValueError(f"tau must have shape (N, L, W), got {tau.shape}")
     if ssa.shape != tau.shape or g.shape != tau.shape:
         raise ValueError(
-            f"tau, ssa and g must share one shape (N, L, W); got {tau.shape}, {ssa.shape}, {g.shape}"
+            "tau, ssa and g must share one shape (N, L, W); "
+            f"got {tau.shape}, {ssa.shape}, {g.shape}"
         )
     n_records, n_layers, _ = tau.shape
     if mu0.shape != (n_records,):
@@ -108,7 +109,8 @@ def _check_inputs(tau, ssa, g, mu0, beam_air_mass):
         beam_air_mass = np.asarray(beam_air_mass, dtype=np.float64)
         if beam_air_mass.shape != (n_records, n_layers):
             raise ValueError(
-                f"beam_air_mass must have shape ({n_records}, {n_layers}), got {beam_air_mass.shape}"
+                f"beam_air_mass must have shape ({n_records}, {n_layers}), "
+                f"got {beam_air_mass.shape}"
             )
     if np.any(tau < 0) or np.any(~np.isfinite(tau)):
         raise ValueError("tau must be finite and non-negative")
@@ -216,7 +218,8 @@ def transfer_components(tau, ssa, g, mu0, beam_air_mass=None) -> TransferCompone
     direct_horizontal = np.where(sun_up[:, None], mu_col * beam, 0.0)
     diffuse_down = np.where(sun_up[:, None], diffuse_down, 0.0)
     reflected = np.where(sun_up[:, None], reflected, 0.0)
-    return TransferComponents(direct_horizontal, diffuse_down, reflect_from_below, reflected, transmit_up)
+    return TransferComponents(direct_horizontal, diffuse_down, reflect_from_below, reflected,
+                              transmit_up)
 
 
 def apply_surface_albedo(direct_horizontal, diffuse_down_black_surface, spherical_albedo, albedo):
