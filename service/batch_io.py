@@ -107,6 +107,17 @@ class Text(fields.String):
         super().__init__(**kwargs)
 
 
+class StrictBoolean(fields.Boolean):
+    """``true`` or ``false`` only (no 1, "yes" or "on")."""
+
+    default_error_messages = {"invalid": "must be true or false"}
+
+    def _deserialize(self, value, attr, data, **kwargs):
+        if not isinstance(value, bool):
+            raise self.make_error("invalid")
+        return value
+
+
 class OneOfRegistry(validate.Validator):
     """Value must be a key of a registry looked up at call time (e.g. surface types)."""
 

@@ -19,6 +19,7 @@ from service.batch_io import (
     ConditionsRecordSchema,
     OneOfRegistry,
     OptionsSchema,
+    StrictBoolean,
     csv_response,
     json_response,
     negotiate,
@@ -48,17 +49,6 @@ def default_spectra() -> list[str]:
     from models.engine import DEFAULT_SPECTRA
 
     return list(DEFAULT_SPECTRA)
-
-
-class StrictBoolean(fields.Boolean):
-    """``true`` or ``false`` only (no 1, "yes" or "on")."""
-
-    default_error_messages = {"invalid": "must be true or false"}
-
-    def _deserialize(self, value, attr, data, **kwargs):
-        if not isinstance(value, bool):
-            raise self.make_error("invalid")
-        return value
 
 
 class IrradianceRecordSchema(ConditionsRecordSchema):
