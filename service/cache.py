@@ -46,9 +46,8 @@ log = logging.getLogger("uvdose.cache")
 Columns = dict[str, np.ndarray]
 ComputeFn = Callable[[Columns], Columns]
 
-# Round-to-nearest resolution of each input besides place and time. The physics each step
-# stands for (relative change of the erythemal irradiance at half a step, worst case in the
-# accuracy test of this module): ozone 0.5 DU ≈ 0.2 % (radiation amplification factor
+# Round-to-nearest resolution of each input besides place and time. What half a step
+# changes in the erythemal irradiance: ozone 0.5 DU ≈ 0.2 % (radiation amplification factor
 # ≈ 1.2, WMO ozone assessments, from memory); pressure 0.5 hPa ≈ 0.05 % of the Rayleigh
 # optical depth; elevation 5 m ≈ 0.04 % (≈ 7 %/km, from memory); the cloud factor ±0.001,
 # which is ±0.016 UVI at a clear-sky UVI of 16; the aerosol single-scattering albedo
@@ -94,7 +93,7 @@ class CellGrid:
     cell_minutes: float = 2.0
 
     def __post_init__(self) -> None:
-        for name, total in (("cell_deg", 180.0), ("cell_deg", 360.0)):
+        for total in (180.0, 360.0):
             cells = total / self.cell_deg if self.cell_deg > 0 else 0.0
             if not (cells >= 1 and abs(cells - round(cells)) < 1e-9):
                 raise CacheSettingsError(
@@ -225,10 +224,6 @@ class _Layout:
     """How one value's bytes map to result columns: (name, kind, stored dtype, width)."""
 
     fields: tuple[tuple[str, str, str, int], ...]
-
-    @property
-    def names(self) -> tuple[str, ...]:
-        return tuple(f[0] for f in self.fields)
 
     @cached_property
     def value_bytes(self) -> int:
