@@ -186,10 +186,16 @@ class ConditionsRecordSchema(RecordSchema):
     cloud_modification_factor = StrictNumber(data_key="cloud_factor", validate=between(0, 1.5),
                                              metadata={"units": "1"})
 
+    exclusive_fields = (("surface_albedo", "surface_type"),)
+    """Pairs of fields (attribute names) a record may give one of, not both."""
+
     @validates_schema
-    def _albedo_or_type(self, data: Mapping[str, Any], **kwargs: Any) -> None:
-        if data.get("surface_albedo") is not None and data.get("surface_type") is not None:
-            raise ValidationError("give surface_albedo or surface_type, not both", "surface_type")
+    def _one_of_each_pair(self, data: Mapping[str, Any], **kwargs: Any) -> None:
+        for first, second in self.exclusive_fields:
+            if data.get(first) is not None and data.get(second) is not None:
+                raise ValidationError(f"give {self.fields[first].data_key or first} or "
+                                      f"{self.fields[second].data_key or second}, not both",
+                                      self.fields[second].data_key or second)
 
 
 # ---------------------------------------------------------------------------------------
@@ -271,6 +277,10 @@ def _none_mask(values: list) -> np.ndarray:
     return np.equal(_object_column(values), None)
 
 
+def _given(column: np.ndarray) -> np.ndarray:
+    return ~np.isnan(column) if column.dtype.kind == "f" else ~np.equal(column, None)
+
+
 def _check_number(rule: ColumnRule, values: list, n: int) -> tuple[np.ndarray, np.ndarray]:
     """(float column with NaN where not given, mask of bad entries)."""
     bad = np.zeros(n, dtype=bool)
@@ -318,9 +328,12 @@ def _check_time(rule: ColumnRule, values: list, n: int) -> tuple[np.ndarray, np.
             except (TypeError, ValueError):
                 pass
     with np.errstate(invalid="ignore"):
-        bad |= ~((column >= rule.minimum) & (column < rule.maximum if not rule.max_inclusive
-                                               else column <= rule.maximum))
-    return column, bad
+        in_range = np.isfinite(column)
+        if rule.minimum is not None:
+            in_range &= column >= rule.minimum
+        if rule.maximum is not None:
+            in_range &= (column <= rule.maximum) if rule.max_inclusive else (column < rule.maximum)
+    return column, bad | ~in_range
 
 
 def _check_text(rule: ColumnRule, values: list, n: int) -> tuple[np.ndarray, np.ndarray]:
@@ -345,10 +358,6 @@ def _check_text(rule: ColumnRule, values: list, n: int) -> tuple[np.ndarray, np.
 
 
 _CHECKS = {"number": _check_number, "time": _check_time, "text": _check_text}
-
-
-def _record_at(raw: Mapping[str, list], index: int) -> dict[str, Any]:
-    return {wire: values[index] for wire, values in raw.items() if values[index] is not None}
 
 
 def validate_columns(
@@ -385,8 +394,9 @@ def validate_columns(
         column, bad = _CHECKS[rule.kind](rule, values, n)
         bad_rows |= bad
         columns[rule.column] = column
-    if "surface_albedo" in columns and "surface_type" in columns:
-        bad_rows |= ~np.isnan(columns["surface_albedo"]) & ~np.equal(columns["surface_type"], None)
+    for first, second in getattr(schema, "exclusive_fields", ()):
+        if first in columns and second in columns:
+            bad_rows |= _given(columns[first]) & _given(columns[second])
 
     ids = columns.pop("id", None)
     if ids is None:
