@@ -16,6 +16,7 @@ from __future__ import annotations
 import argparse
 import os
 import runpy
+import shutil
 import sys
 import tempfile
 from pathlib import Path
@@ -30,11 +31,15 @@ EXIT_INVALID = 2
 # serve
 
 
-def _default_server_settings() -> dict[str, Any]:
+def _default_server_settings(own_metrics_dir: str | None) -> dict[str, Any]:
     def child_exit(server, worker):
         from prometheus_client import multiprocess
 
         multiprocess.mark_process_dead(worker.pid)
+
+    def on_exit(server):
+        if own_metrics_dir:
+            shutil.rmtree(own_metrics_dir, ignore_errors=True)
 
     return {
         "bind": ["127.0.0.1:8080"],
@@ -45,6 +50,7 @@ def _default_server_settings() -> dict[str, Any]:
         "graceful_timeout": 30,
         "accesslog": None,
         "child_exit": child_exit,
+        "on_exit": on_exit,
     }
 
 
@@ -52,9 +58,11 @@ def serve(bind: str | None, workers: int | None, config_path: Path | None) -> No
     """Run gunicorn in this process until it is told to stop."""
     from gunicorn.app.base import BaseApplication
 
+    own_metrics_dir = None
     if config_path is None and not os.environ.get("PROMETHEUS_MULTIPROC_DIR"):
         # Must be set before prometheus_client is first imported (by the app, below).
-        os.environ["PROMETHEUS_MULTIPROC_DIR"] = tempfile.mkdtemp(prefix="uvdose-serve-metrics-")
+        own_metrics_dir = tempfile.mkdtemp(prefix="uvdose-serve-metrics-")
+        os.environ["PROMETHEUS_MULTIPROC_DIR"] = own_metrics_dir
 
     class Server(BaseApplication):
         def load_config(self) -> None:
@@ -64,7 +72,7 @@ def serve(bind: str | None, workers: int | None, config_path: Path | None) -> No
                     if key in self.cfg.settings and value is not None:
                         self.cfg.set(key, value)
             else:
-                for key, value in _default_server_settings().items():
+                for key, value in _default_server_settings(own_metrics_dir).items():
                     self.cfg.set(key, value)
             if bind:
                 self.cfg.set("bind", [bind])

@@ -92,16 +92,23 @@ def test_progress_bar_goes_to_stderr_for_multi_chunk_files(tmp_path):
 
 
 @pytest.mark.gunicorn
-def test_serve_runs_gunicorn_and_stops_cleanly_on_sigterm(tmp_path):
+@pytest.mark.parametrize("command", [
+    ["-m", "service.cli", "serve", "--bind", "{bind}"],  # with deploy/gunicorn.conf.py
+    ["-c", "from service.cli import serve; serve('{bind}', 1, None)"],  # the built-in defaults
+], ids=["deploy-config", "built-in-defaults"])
+def test_serve_runs_gunicorn_and_stops_cleanly_on_sigterm(tmp_path, command):
     port = free_loopback_port()
     env = {**os.environ, "UVDOSE_WORKERS": "1"}
     env.pop("PROMETHEUS_MULTIPROC_DIR", None)
-    process = subprocess.Popen([sys.executable, "-m", "service.cli", "serve", "--bind", f"127.0.0.1:{port}"],
+    argv = [part.replace("{bind}", f"127.0.0.1:{port}") for part in command]
+    process = subprocess.Popen([sys.executable, *argv],
                                cwd=tmp_path, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
     try:
         wait_until_answers(f"http://127.0.0.1:{port}/livez", process, timeout_s=60)
         with urllib.request.urlopen(f"http://127.0.0.1:{port}/readyz", timeout=30) as reply:
             assert json.load(reply)["status"] in ("ready", "degraded")
+        with urllib.request.urlopen(f"http://127.0.0.1:{port}/metrics", timeout=30) as reply:
+            assert b"uvdose_http_requests_total" in reply.read()
         process.send_signal(signal.SIGTERM)
         assert process.wait(timeout=40) == 0
     finally:
