@@ -66,9 +66,15 @@ def test_openapi_lists_the_action_spectra_the_models_define(openapi_spec):
     from models.action_spectra import ACTION_SPECTRA
     from models.engine import DEFAULT_SPECTRA
 
+    from marshmallow import validate
+
+    from service.routes_irradiance import IrradianceOptionsSchema
+
     schemas = openapi_spec["components"]["schemas"]
     assert set(schemas["SpectrumName"]["enum"]) == set(ACTION_SPECTRA)
     assert schemas["SpectraOption"]["default"] == list(DEFAULT_SPECTRA)
+    (length,) = [v for v in IrradianceOptionsSchema().fields["spectra"].validators if isinstance(v, validate.Length)]
+    assert (schemas["SpectraOption"]["minItems"], schemas["SpectraOption"]["maxItems"]) == (length.min, length.max)
 
 
 # --- property-based: generated requests never make the service fail -------------------------
