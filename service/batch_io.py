@@ -222,7 +222,13 @@ def _validators(field: fields.Field) -> list[validate.Validator]:
 
 
 def column_rules(schema: Schema) -> tuple[ColumnRule, ...]:
-    """The per-field checks of ``schema``, in declaration order."""
+    """The per-field checks of ``schema``, in declaration order (read once per schema class)."""
+    return _column_rules_of(type(schema))
+
+
+@lru_cache(maxsize=None)
+def _column_rules_of(schema_class: type[Schema]) -> tuple[ColumnRule, ...]:
+    schema = schema_class()
     rules = []
     for name, field in schema.fields.items():
         if isinstance(field, StrictNumber):
