@@ -413,9 +413,11 @@ def validate_columns(
         errors += describe_records(raw, schema, bad_indices, ids, record_offset)
         errors.sort(key=lambda error: -1 if error.index is None else error.index)
         bad_count = len({error.index for error in errors if error.index is not None})
-        detail = (f"{bad_count} of {n} record(s) have errors" if bad_count
-                  else "The request has errors") + "; nothing was computed."
-        raise Problem(422, "invalid-records", "The batch has invalid records", detail, errors)
+        if not bad_count:  # only request-wide errors: options, or column names in the column layout
+            raise Problem(422, "invalid-options", "The request options are invalid", "Nothing was computed.",
+                          errors)
+        raise Problem(422, "invalid-records", "The batch has invalid records",
+                      f"{bad_count} of {n} record(s) have errors; nothing was computed.", errors)
     if "surface_type" in columns:
         columns["surface_type"] = np.where(np.equal(columns["surface_type"], None), "", columns["surface_type"])
     return Batch(columns=columns, ids=ids)

@@ -112,16 +112,23 @@ def compute_through_cache(columns: Mapping[str, np.ndarray], compute, context: s
     return cache.compute_through(columns, compute, context)
 
 
-def result_columns(result: Mapping[str, np.ndarray], ids: np.ndarray, spectra: list[str]) -> dict[str, list]:
-    """Flat output columns as Python lists: id, scalars, ``effective_w_m2.<name>``, used values."""
-    out: dict[str, list] = {"id": ids.tolist()}
-    for wire, column in _SCALAR_OUTPUTS:
-        out[wire] = np.asarray(result[column]).tolist()
-    for name in spectra:
-        out[f"effective_w_m2.{name}"] = np.asarray(result[f"effective_w_m2.{name}"]).tolist()
-    for wire, column in _USED_OUTPUTS:
-        out[wire] = np.asarray(result[column]).tolist()
+def result_columns(result: Mapping[str, np.ndarray], ids: np.ndarray, spectra: list[str]) -> dict[str, Any]:
+    """Flat output columns: id, scalars, ``effective_w_m2.<name>``, used values.
+
+    Numbers stay float arrays (orjson writes them directly); text columns become lists."""
+    out: dict[str, Any] = {"id": ids.tolist()}
+    names = [(wire, column) for wire, column in _SCALAR_OUTPUTS]
+    names += [(f"effective_w_m2.{name}", f"effective_w_m2.{name}") for name in spectra]
+    names += list(_USED_OUTPUTS)
+    for wire, column in names:
+        values = np.asarray(result[column])
+        out[wire] = values.tolist() if values.dtype.kind in "OUS" else values.astype(np.float64, copy=False)
     return out
+
+
+def as_lists(columns: Mapping[str, Any]) -> dict[str, list]:
+    """The same columns as Python lists (for row building and CSV)."""
+    return {name: values.tolist() if isinstance(values, np.ndarray) else values for name, values in columns.items()}
 
 
 def spectrum_matrix(result: Mapping[str, np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
@@ -140,16 +147,18 @@ def envelope(spectra: list[str], wavelength_nm: np.ndarray | None) -> dict[str, 
     return body
 
 
-def csv_columns(columns: dict[str, list], wavelength_nm, spectrum) -> dict[str, list]:
+def csv_columns(columns: Mapping[str, Any], wavelength_nm, spectrum) -> dict[str, list]:
     """Flat columns plus one ``spectrum_w_m2_nm.<nm>`` column per wavelength when there is a spectrum."""
+    columns = as_lists(columns)
     if spectrum is not None:
         for index, nm in enumerate(wavelength_nm):
             columns[f"spectrum_w_m2_nm.{nm:g}"] = spectrum[:, index].tolist()
     return columns
 
 
-def result_rows(columns: dict[str, list], spectra: list[str], spectrum) -> list[dict[str, Any]]:
+def result_rows(columns: Mapping[str, Any], spectra: list[str], spectrum) -> list[dict[str, Any]]:
     """One dict per record, effective irradiance nested under ``effective_w_m2``."""
+    columns = as_lists(columns)
     effective = {name: columns.pop(f"effective_w_m2.{name}") for name in spectra}
     nested = rows_from_columns(effective)
     rows: dict[str, Any] = {}

@@ -297,3 +297,12 @@ def test_repeated_cells_are_served_from_redis_with_the_same_numbers(make_app, co
     assert count("hit") > hits and count("miss") == misses  # every cell of the repeat was stored
     assert [r["uv_index"] for r in second] == pytest.approx([r["uv_index"] for r in first], rel=1e-6)
     assert redis_client.dbsize() > 0
+
+
+def test_problem_types_tell_record_errors_from_option_errors(client):
+    options_only = post(client, {"records": [ORCHARD], "spectra": ["sunburn"]}).get_json()
+    assert options_only["type"] == "urn:uvdose:problem:invalid-options"
+    both = post(client, {"records": [{**ORCHARD, "lat": 100}], "spectra": ["sunburn"]}).get_json()
+    assert both["type"] == "urn:uvdose:problem:invalid-records"
+    assert {e["field"] for e in both["errors"]} == {"spectra[0]", "lat"}
+    assert post(client, [1]).get_json()["type"] == "urn:uvdose:problem:malformed-body"
