@@ -122,7 +122,7 @@ def result_columns(result: Mapping[str, np.ndarray], ids: np.ndarray, spectra: l
     names += list(_USED_OUTPUTS)
     for wire, column in names:
         values = np.asarray(result[column])
-        out[wire] = values.tolist() if values.dtype.kind in "OUS" else values.astype(np.float64, copy=False)
+        out[wire] = values.tolist() if values.dtype.kind in "OUS" else np.ascontiguousarray(values, np.float64)
     return out
 
 

@@ -117,15 +117,19 @@ def test_results_come_back_in_request_order_with_ids(client):
     assert set(body["results"][0]["effective_w_m2"]) == set(body["spectra"])
 
 
-def test_the_column_layout_gives_the_same_numbers_as_rows(client):
+@pytest.mark.parametrize("cache", ["memory", "off"])
+def test_the_column_layout_gives_the_same_numbers_as_rows(make_app, contract_client_for, cache):
+    client = contract_client_for(make_app(UVDOSE_CACHE=cache))
     records = _records(5)
-    rows = post(client, {"records": records, "spectra": ["dna_damage"]}).get_json()["results"]
+    rows = post(client, {"records": records, "spectra": ["dna_damage", "uva"]}).get_json()["results"]
     columns = {name: [r[name] for r in records] for name in records[0]}
-    body = post(client, {"columns": columns, "spectra": ["dna_damage"]}).get_json()
+    body = post(client, {"columns": columns, "spectra": ["dna_damage", "uva"], "include_spectrum": True}).get_json()
     out = body["columns"]
     assert out["id"] == [r["id"] for r in rows]
     assert out["uv_index"] == [r["uv_index"] for r in rows]
     assert out["effective_w_m2.dna_damage"] == [r["effective_w_m2"]["dna_damage"] for r in rows]
+    assert out["effective_w_m2.uva"] == [r["effective_w_m2"]["uva"] for r in rows]
+    assert len(out["spectrum_w_m2_nm"]) == 5 and len(out["spectrum_w_m2_nm"][0]) == len(body["wavelength_nm"])
 
 
 def test_include_spectrum_adds_the_grid_and_a_spectrum_consistent_with_the_bands(exact):
