@@ -320,19 +320,69 @@ def _finite_or_inf(value: Any) -> float | None:
         return math.inf
 
 
+_DIGITS_AT = np.array([0, 1, 2, 3, 5, 6, 8, 9, 11, 12, 14, 15, 17, 18])
+_DAYS_IN_MONTH = np.array([0, 31, 28, 31, 30, 31, 30, 31, 31, 30, 31, 30, 31])
+
+
+def unix_seconds_of_canonical_times(values: Sequence[Any]) -> tuple[np.ndarray, np.ndarray]:
+    """Vectorised :func:`parse_offset_datetime` for the two shapes clients send most,
+    ``YYYY-MM-DDTHH:MM:SSZ`` and ``YYYY-MM-DDTHH:MM:SS±HH:MM``.
+
+    Returns (Unix seconds, mask of the entries it read); entries of any other shape (or
+    not strings) are left to :func:`parse_offset_datetime`. The entries it reads are
+    exactly those Python's ``datetime.fromisoformat`` reads to the same instant (a test
+    holds the two together); it exists because ``datetime.timestamp()`` costs about 2 µs
+    a record, most of the time spent validating 10 000 records.
+    """
+    n = len(values)
+    text = np.array(values) if n else np.zeros(0, dtype="U25")
+    if text.dtype.kind != "U" or text.ndim != 1 or text.dtype.itemsize // 4 not in (20, 25):
+        return np.full(n, np.nan), np.zeros(n, dtype=bool)
+    codes = text.view(np.uint32).reshape(n, -1).astype(np.int64)
+    if codes.shape[1] == 20:
+        codes = np.hstack([codes, np.zeros((n, 5), dtype=np.int64)])
+    digits = codes[:, _DIGITS_AT] - 48
+    ok = ((digits >= 0) & (digits <= 9)).all(axis=1)
+    ok &= (codes[:, 4] == 45) & (codes[:, 7] == 45) & (codes[:, 10] == 84)  # "-", "-", "T"
+    ok &= (codes[:, 13] == 58) & (codes[:, 16] == 58)  # ":", ":"
+    zulu = (codes[:, 19] == 90) & (codes[:, 20] == 0)  # "Z", then nothing
+    off_digits = codes[:, [20, 21, 23, 24]] - 48
+    signed = np.isin(codes[:, 19], (43, 45)) & (codes[:, 22] == 58)  # "+" or "-", "hh:mm"
+    signed &= ((off_digits >= 0) & (off_digits <= 9)).all(axis=1)
+    ok &= zulu | signed
+
+    def number(columns):
+        return (digits[:, columns] * (10 ** np.arange(len(columns) - 1, -1, -1))).sum(axis=1)
+
+    year, month, day = number([0, 1, 2, 3]), number([4, 5]), number([6, 7])
+    hour, minute, second = number([8, 9]), number([10, 11]), number([12, 13])
+    offset_h = off_digits[:, 0] * 10 + off_digits[:, 1]
+    offset_m = off_digits[:, 2] * 10 + off_digits[:, 3]
+    leap = (year % 4 == 0) & ((year % 100 != 0) | (year % 400 == 0))
+    month_days = _DAYS_IN_MONTH[np.clip(month, 0, 12)] + ((month == 2) & leap)
+    ok &= (year >= 1) & (month >= 1) & (month <= 12) & (day >= 1) & (day <= month_days)
+    ok &= (hour <= 23) & (minute <= 59) & (second <= 59)
+    ok &= zulu | ((offset_h <= 23) & (offset_m <= 59))
+    # Days from the civil date (proleptic Gregorian), H. Hinnant's "days_from_civil" algorithm.
+    y = year - (month <= 2)
+    era = np.floor_divide(y, 400)
+    year_of_era = y - era * 400
+    day_of_year = (153 * (month + np.where(month > 2, -3, 9)) + 2) // 5 + day - 1
+    day_of_era = year_of_era * 365 + year_of_era // 4 - year_of_era // 100 + day_of_year
+    days = era * 146097 + day_of_era - 719468
+    offset_s = np.where(zulu, 0, np.where(codes[:, 19] == 45, -1, 1) * (offset_h * 3600 + offset_m * 60))
+    seconds = days * 86400 + hour * 3600 + minute * 60 + second - offset_s
+    return np.where(ok, seconds.astype(np.float64), np.nan), ok
+
+
 def _check_time(rule: ColumnRule, values: list, n: int) -> tuple[np.ndarray, np.ndarray]:
-    try:
-        column = np.array([parse_offset_datetime(v) for v in values], dtype=np.float64)
-        bad = np.zeros(n, dtype=bool)
-    except (TypeError, ValueError):
-        column = np.full(n, np.nan)
-        bad = np.ones(n, dtype=bool)
-        for index, value in enumerate(values):  # only after a failure: find which entries
-            try:
-                column[index] = parse_offset_datetime(value)
-                bad[index] = False
-            except (TypeError, ValueError):
-                pass
+    column, read = unix_seconds_of_canonical_times(values)
+    bad = np.zeros(n, dtype=bool)
+    for index in np.flatnonzero(~read):  # other shapes, one by one
+        try:
+            column[index] = parse_offset_datetime(values[index])
+        except (TypeError, ValueError):
+            bad[index] = True
     with np.errstate(invalid="ignore"):
         in_range = np.isfinite(column)
         if rule.minimum is not None:
