@@ -736,20 +736,34 @@ def json_response(body: Any, status: int = 200) -> Response:
                     mimetype=JSON_MEDIA_TYPE)
 
 
-def rows_from_columns(columns: Mapping[str, Sequence]) -> list[dict[str, Any]]:
-    """Turn equal-length columns (lists) into a list of row dicts, keys in column order."""
-    return _row_builder(tuple(columns))(zip(*columns.values()))
+def rows_from_columns(columns: Mapping[str, Sequence], nest: str | None = None) -> list[dict[str, Any]]:
+    """Turn equal-length columns (lists) into a list of row dicts, keys in column order.
+
+    With ``nest``, columns named ``<nest>.<name>`` become one dict member ``<nest>`` of
+    each row (``{"<name>": value, ...}``), placed where the first of them stands.
+    """
+    return _row_builder(tuple(columns), nest)(zip(*columns.values()))
 
 
 @lru_cache(maxsize=64)
-def _row_builder(keys: tuple[str, ...]) -> Callable[[Iterable[tuple]], list[dict[str, Any]]]:
+def _row_builder(keys: tuple[str, ...], nest: str | None) -> Callable[[Iterable[tuple]], list[dict[str, Any]]]:
     # A dict display with constant keys builds each row about twice as fast as
     # dict(zip(keys, values)) (measured in tests/benchmarks/bench_http.py, 10 000 rows).
     # The keys enter the generated source only through repr(), as string literals.
     if not keys:
         return lambda rows: [{} for _ in rows]
     names = [f"v{index}" for index in range(len(keys))]
-    display = ", ".join(f"{key!r}: {name}" for key, name in zip(keys, names))
+    members: list[str | None] = []  # None marks where the nested member goes
+    nested: list[str] = []
+    for key, name in zip(keys, names):
+        if nest is not None and key.startswith(nest + "."):
+            if not nested:
+                members.append(None)
+            nested.append(f"{key[len(nest) + 1:]!r}: {name}")
+        else:
+            members.append(f"{key!r}: {name}")
+    group = f"{nest!r}: {{{', '.join(nested)}}}"
+    display = ", ".join(group if member is None else member for member in members)
     targets = ", ".join(names) + ("," if len(names) == 1 else "")
     return eval(f"lambda rows: [{{{display}}} for {targets} in rows]")  # noqa: S307
 

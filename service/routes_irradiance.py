@@ -159,16 +159,9 @@ def csv_columns(columns: Mapping[str, Any], wavelength_nm, spectrum) -> dict[str
 def result_rows(columns: Mapping[str, Any], spectra: list[str], spectrum) -> list[dict[str, Any]]:
     """One dict per record, effective irradiance nested under ``effective_w_m2``."""
     columns = as_lists(columns)
-    effective = {name: columns.pop(f"effective_w_m2.{name}") for name in spectra}
-    nested = rows_from_columns(effective)
-    rows: dict[str, Any] = {}
-    for wire, values in columns.items():
-        rows[wire] = values
-        if wire == "exposure_category":
-            rows["effective_w_m2"] = nested
     if spectrum is not None:
-        rows["spectrum_w_m2_nm"] = spectrum.tolist()
-    return rows_from_columns(rows)
+        columns["spectrum_w_m2_nm"] = spectrum.tolist()
+    return rows_from_columns(columns, nest="effective_w_m2")
 
 
 def run(columns: Mapping[str, np.ndarray], ids: np.ndarray, spectra: list[str], include_spectrum: bool,
