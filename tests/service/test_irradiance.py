@@ -346,3 +346,13 @@ def test_the_vectorised_time_reader_agrees_with_python_fromisoformat():
         except ValueError:
             expected = None
         assert rejected if expected is None else (not rejected and value == expected), text
+
+
+def test_nested_values_in_any_field_are_errors_not_crashes(exact):
+    records = [{**ORCHARD, "time": ["2026"], "lat": [1], "surface_type": [None, None], "id": {"a": 1}},
+               {**ORCHARD, "time": {"t": 1}}]
+    errors = _errors(post(exact, {"records": records}))
+    assert {(e["index"], e["field"]) for e in errors} == {(0, "time"), (0, "lat"), (0, "surface_type"), (0, "id"),
+                                                          (1, "time")}
+    columns = {"time": [[ORCHARD["time"]]], "lat": [[44.0]], "lon": [4.9]}
+    assert {e["field"] for e in _errors(post(exact, {"columns": columns}))} == {"time", "lat"}
