@@ -93,13 +93,15 @@ _USED_OUTPUTS = (
 )
 
 
-def engine_call(spectra: list[str], include_spectrum: bool) -> Callable[[Mapping[str, np.ndarray]], dict]:
+def engine_call(spectra: list[str], include_spectrum: bool,
+                ozone_resolver=None) -> Callable[[Mapping[str, np.ndarray]], dict]:
     """The engine on a dict of input columns, returning result columns (what the cache stores)."""
     from models import engine
 
     def compute(columns: Mapping[str, np.ndarray]) -> dict[str, np.ndarray]:
         conditions = engine.Conditions.from_columns(columns)
-        return engine.compute(conditions, spectra=spectra, include_spectrum=include_spectrum).as_columns()
+        return engine.compute(conditions, spectra=spectra, include_spectrum=include_spectrum,
+                              ozone_resolver=ozone_resolver).as_columns()
 
     return compute
 
@@ -165,10 +167,17 @@ def result_rows(columns: Mapping[str, Any], spectra: list[str], spectrum) -> lis
 
 
 def run(columns: Mapping[str, np.ndarray], ids: np.ndarray, spectra: list[str], include_spectrum: bool,
-        through: Callable | None = None) -> tuple[dict[str, list], np.ndarray | None, np.ndarray | None]:
-    """Compute validated columns; returns (flat output columns, wavelength_nm, spectrum)."""
-    compute = engine_call(spectra, include_spectrum)
-    context = f"irradiance;spectra={','.join(spectra)};spectrum={int(include_spectrum)}"
+        through: Callable | None = None,
+        ozone_resolver=None) -> tuple[dict[str, Any], np.ndarray | None, np.ndarray | None]:
+    """Compute validated columns; returns (flat output columns, wavelength_nm, spectrum).
+
+    ``ozone_resolver`` is the app's (``app.extensions["uvdose_ozone"]``), ``None`` for the
+    engine's default; its fingerprint goes into the cache context, since a changed grid
+    file changes results without a new ``MODEL_VERSION``.
+    """
+    compute = engine_call(spectra, include_spectrum, ozone_resolver)
+    context = (f"irradiance;spectra={','.join(spectra)};spectrum={int(include_spectrum)};"
+               f"ozone={getattr(ozone_resolver, 'fingerprint', 'default')}")
     result = through(columns, compute, context) if through else compute(columns)
     wavelength_nm = spectrum = None
     if include_spectrum:
@@ -184,7 +193,8 @@ def irradiance() -> Response:
     batch, options = batch_request.batch, batch_request.options
     spectra = options.get("spectra") or default_spectra()
     columns, wavelength_nm, spectrum = run(batch.columns, batch.ids, spectra, options["include_spectrum"],
-                                           through=compute_through_cache)
+                                           through=compute_through_cache,
+                                           ozone_resolver=current_app.extensions.get("uvdose_ozone"))
     metrics.count_records(ROUTE, len(batch))
     if media_type == CSV_MEDIA_TYPE:
         return csv_response(csv_columns(columns, wavelength_nm, spectrum))

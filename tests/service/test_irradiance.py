@@ -356,3 +356,19 @@ def test_nested_values_in_any_field_are_errors_not_crashes(exact):
                                                           (1, "time")}
     columns = {"time": [[ORCHARD["time"]]], "lat": [[44.0]], "lon": [4.9]}
     assert {e["field"] for e in _errors(post(exact, {"columns": columns}))} == {"time", "lat"}
+
+
+def test_an_operator_ozone_grid_in_the_app_config_is_used_and_named(tmp_path, make_app, contract_client_for):
+    # Invented demo grid over the orchard's region: a flat 321 DU for two days.
+    grid = tmp_path / "combe_basse_ozone.csv"
+    lines = ["date,latitude_deg,longitude_deg,ozone_du"]
+    for date in ("2026-06-20", "2026-06-21", "2026-06-22"):
+        for lat in (43.0, 45.0):
+            for lon in (4.0, 6.0):
+                lines.append(f"{date},{lat},{lon},321")
+    grid.write_text("\n".join(lines) + "\n")
+    client = contract_client_for(make_app(UVDOSE_OZONE_GRIDS=str(grid), UVDOSE_CACHE="memory"))
+    result = one(client)
+    assert result["ozone_source"] == "grid:combe_basse_ozone.csv"
+    assert result["ozone_du"] == pytest.approx(321)
+    assert one(client, ozone_du=280)["ozone_source"] == "client"  # the client's value comes first
