@@ -598,6 +598,9 @@ def read_batch_bytes(
     else:
         raw, n, unknown = _given_columns(body["columns"], record_schema, max_records)
     options, option_errors = _options(options_schema, rest)
+    # Query options are for CSV bodies; ignoring them under JSON would drop them silently.
+    option_errors += [FieldError(field=name, reason="is a query option for CSV bodies; give it in the JSON body")
+                      for name in _query_options(query, options_schema)]
     batch = validate_columns(raw, record_schema, n=n, unknown=option_errors + unknown)
     return BatchRequest(batch, options, layout)
 

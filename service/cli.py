@@ -135,8 +135,9 @@ def run_batch(
                 if include_spectrum:
                     body["include_spectrum"] = True
                 data = orjson.dumps(body)
+        query = options if in_type == batch_io.CSV_MEDIA_TYPE else {}
         batch_request = batch_io.read_batch_bytes(
-            data, in_type, options, record_schema=irr.IrradianceRecordSchema(),
+            data, in_type, query, record_schema=irr.IrradianceRecordSchema(),
             options_schema=irr.IrradianceOptionsSchema(), max_records=sys.maxsize)
     except (Problem, orjson.JSONDecodeError) as error:
         problem = error if isinstance(error, Problem) else Problem(400, "malformed-body", "Unreadable input", str(error))

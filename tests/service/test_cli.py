@@ -47,6 +47,9 @@ def test_batch_json_to_json_keeps_the_response_shape(tmp_path):
     assert main(["batch", str(source), str(target), "--chunk-size", "5", "--no-progress"]) == 0
     body = json.loads(target.read_text())
     assert body["spectra"] == ["plant_growth"]
+    overridden = tmp_path / "overridden.json"
+    assert main(["batch", str(source), str(overridden), "--spectra", "uva", "dna_damage", "--no-progress"]) == 0
+    assert json.loads(overridden.read_text())["spectra"] == ["uva", "dna_damage"]  # the command line wins
     assert "not medical or occupational-health advice" in body["caution"]
     assert len(body["results"]) == len(HOURS)
     by_id = {r["id"]: r for r in body["results"]}

@@ -103,3 +103,10 @@ def test_a_utf8_byte_order_mark_and_crlf_line_ends_are_accepted(client):
 def test_csv_that_is_not_utf8_is_a_400(client):
     response = client.post(URL, data="id,time,lat,lon\n\xe9,x,1,2\n".encode("latin-1"), content_type="text/csv")
     assert response.status_code == 400
+
+
+def test_query_options_with_a_json_body_are_refused_not_ignored(client):
+    body = {"records": [{"time": "2026-07-14T09:10:00+02:00", "lat": 45.75, "lon": 4.85}]}
+    response = client.post(URL + "?spectra=uva", json=body)
+    assert response.status_code == 422
+    assert [e["field"] for e in response.get_json()["errors"]] == ["spectra"]
