@@ -36,6 +36,10 @@ Numerical safeguards (documented because they change numbers, if only slightly):
 - All exponentials have non-positive arguments, so optically thick layers neither
   overflow nor lose the solution.
 
+``models.four_stream`` holds a four-stream discrete-ordinates solver with the same array
+contract that meets the low-sun target below (tests/models/test_four_stream.py); the
+engine still uses this module.
+
 Known limitations (measured against 16-stream DISORT, see tests/models/test_two_stream.py):
 
 - Low sun: like every two-stream closure, delta-Eddington overestimates the
@@ -43,7 +47,10 @@ Known limitations (measured against 16-stream DISORT, see tests/models/test_two_
   degrees, +8 % at 75 degrees, +12 % at 80 degrees on a clean UV atmosphere) and
   underestimates skylight that was scattered above the ozone layer (below ~305 nm at
   low sun), because a fixed diffusivity cannot carry the near-vertical skylight
-  through strong absorbers.
+  through strong absorbers. Replacing only the single-scattered skylight by the exact
+  one (TMS-style, Nakajima & Tanaka 1988) was tried and measured: it removes most of
+  the erythemal excess (+1 % at 75 degrees) but leaves the closure's error in the
+  higher orders (UVB still +7 %, UVA now -5 % at 75 degrees); four streams fix both.
 - For nearly pure absorbers (delta-scaled ``w (4 - 3 g) < 1``) the Eddington
   coefficient gamma2 turns negative and so does the layer reflectance (a few per
   cent of the incident diffuse flux at most). In UV atmospheres the Rayleigh
@@ -121,6 +128,20 @@ def _check_inputs(tau, ssa, g, mu0, beam_air_mass):
     return tau, ssa, g, mu0, beam_air_mass
 
 
+def _beam_geometry(mu0, beam_air_mass, n_layers):
+    """``(sun_up, mu_sun, air_mass)``: which records have the sun up, ``mu0`` with 1 in
+    place of the others, and the per-layer beam air mass (N, L) (default ``1/mu0``; 1 where
+    the sun is down), checked to be finite and >= 1 where the sun is up."""
+    sun_up = mu0 > 0
+    mu_sun = np.where(sun_up, mu0, 1.0)
+    if beam_air_mass is None:
+        return sun_up, mu_sun, np.broadcast_to((1.0 / mu_sun)[:, None], (mu0.size, n_layers))
+    air_mass = np.where(sun_up[:, None], beam_air_mass, 1.0)
+    if np.any(~np.isfinite(air_mass) | (air_mass < 1.0 - 1e-9)):
+        raise ValueError("beam_air_mass must be finite and >= 1 where the sun is up")
+    return sun_up, mu_sun, air_mass
+
+
 def _delta_eddington_layer(tau, ssa, g, mu0, attenuation):
     """Reflectance/transmittance of one homogeneous layer, each ``(N, W)``.
 
@@ -186,14 +207,7 @@ def transfer_components(tau, ssa, g, mu0, beam_air_mass=None) -> TransferCompone
     """
     tau, ssa, g, mu0, beam_air_mass = _check_inputs(tau, ssa, g, mu0, beam_air_mass)
     n_records, n_layers, n_wavelengths = tau.shape
-    sun_up = mu0 > 0
-    mu_sun = np.where(sun_up, mu0, 1.0)
-    if beam_air_mass is None:
-        air_mass = np.broadcast_to((1.0 / mu_sun)[:, None], (n_records, n_layers))
-    else:
-        air_mass = np.where(sun_up[:, None], beam_air_mass, 1.0)
-        if np.any(~np.isfinite(air_mass) | (air_mass < 1.0 - 1e-9)):
-            raise ValueError("beam_air_mass must be finite and >= 1 where the sun is up")
+    sun_up, mu_sun, air_mass = _beam_geometry(mu0, beam_air_mass, n_layers)
 
     shape = (n_records, n_wavelengths)
     beam = np.ones(shape)              # beam irradiance normal to the beam

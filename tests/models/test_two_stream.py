@@ -20,6 +20,7 @@ quoted for delta-Eddington fluxes against discrete ordinates in this regime
 import numpy as np
 import pytest
 
+from models import four_stream, two_stream
 from models.two_stream import surface_irradiance, transfer_components
 
 nanodisort = pytest.importorskip("nanodisort")
@@ -163,7 +164,9 @@ def test_weighted_irradiance_high_sun_within_three_percent():
         assert all(abs(value) < 0.03 for value in deviation.values()), (zenith_deg, deviation)
 
 
-# ---- exact limits -------------------------------------------------------------
+# ---- exact limits (both solvers: this two-stream and models.four_stream) ----------------
+
+SOLVERS = pytest.mark.parametrize("solver", [two_stream, four_stream], ids=["two", "four"])
 
 def random_layers(rng, n=4, layers=12, wavelengths=7, ssa=None):
     tau = rng.uniform(0.0, 1.5, (n, layers, wavelengths))
@@ -172,44 +175,47 @@ def random_layers(rng, n=4, layers=12, wavelengths=7, ssa=None):
     return tau, ssa_values, g
 
 
-def test_no_scattering_is_beer_lambert_with_pseudo_spherical_air_mass():
+@SOLVERS
+def test_no_scattering_is_beer_lambert_with_pseudo_spherical_air_mass(solver):
     rng = np.random.default_rng(7)
     tau, ssa, g = random_layers(rng, ssa=0.0)
     mu0 = np.array([1.0, 0.6, 0.2, 0.03])
     air_mass = (1.0 / mu0)[:, None] * rng.uniform(0.7, 1.0, (4, tau.shape[1]))
     air_mass = np.maximum(air_mass, 1.0)
-    direct, diffuse = surface_irradiance(tau, ssa, g, mu0, 0.0, beam_air_mass=air_mass)
+    direct, diffuse = solver.surface_irradiance(tau, ssa, g, mu0, 0.0, beam_air_mass=air_mass)
     expected = mu0[:, None] * np.exp(-np.einsum("nlw,nl->nw", tau, air_mass))
     np.testing.assert_allclose(direct, expected, rtol=1e-12, atol=0)
     assert np.all(diffuse == 0.0)
 
 
-def test_conservative_scattering_conserves_energy():
+@SOLVERS
+def test_conservative_scattering_conserves_energy(solver):
     # Reflected to space + absorbed by the surface = incident (mu0), for any albedo.
     rng = np.random.default_rng(11)
     tau, ssa, g = random_layers(rng, ssa=1.0)
     tau[0, 3] = 80.0  # one optically thick layer
     mu0 = np.array([1.0, 0.5, 0.15, 0.02])
-    parts = transfer_components(tau, ssa, g, mu0)
+    parts = solver.transfer_components(tau, ssa, g, mu0)
     for albedo in (0.0, 0.3, 1.0):
-        direct, diffuse = surface_irradiance(tau, ssa, g, mu0, albedo)
+        direct, diffuse = solver.surface_irradiance(tau, ssa, g, mu0, albedo)
         global_flux = direct + diffuse
         escaping = parts.reflected_black_surface + parts.transmittance_up * albedo * global_flux
         np.testing.assert_allclose(escaping + (1 - albedo) * global_flux,
                                    np.broadcast_to(mu0[:, None], global_flux.shape), rtol=1e-6)
 
 
-def test_albedo_zero_and_one():
+@SOLVERS
+def test_albedo_zero_and_one(solver):
     rng = np.random.default_rng(3)
     tau, ssa, g = random_layers(rng)
     # Eddington gives a slightly negative reflectance for nearly pure absorbers
     # (gamma2 < 0, see the solver's docstring); keep these layers scattering.
     ssa = 0.5 + 0.5 * ssa
     mu0 = np.array([0.9, 0.5, 0.3, 0.1])
-    parts = transfer_components(tau, ssa, g, mu0)
-    direct0, diffuse0 = surface_irradiance(tau, ssa, g, mu0, 0.0)
+    parts = solver.transfer_components(tau, ssa, g, mu0)
+    direct0, diffuse0 = solver.surface_irradiance(tau, ssa, g, mu0, 0.0)
     np.testing.assert_allclose(diffuse0, parts.diffuse_down_black_surface, rtol=1e-12)
-    direct1, diffuse1 = surface_irradiance(tau, ssa, g, mu0, 1.0)
+    direct1, diffuse1 = solver.surface_irradiance(tau, ssa, g, mu0, 1.0)
     np.testing.assert_array_equal(direct1, direct0)  # the beam ignores the ground
     assert np.all((parts.spherical_albedo > 0) & (parts.spherical_albedo < 1))
     np.testing.assert_allclose(direct1 + diffuse1,
@@ -217,21 +223,23 @@ def test_albedo_zero_and_one():
     assert np.all(diffuse1 > diffuse0)
 
 
-def test_sun_below_horizon_gives_exact_zeros():
+@SOLVERS
+def test_sun_below_horizon_gives_exact_zeros(solver):
     rng = np.random.default_rng(5)
     tau, ssa, g = random_layers(rng)
     mu0 = np.array([-0.5, 0.0, 0.4, -1e-9])
-    direct, diffuse = surface_irradiance(tau, ssa, g, mu0, 0.3)
+    direct, diffuse = solver.surface_irradiance(tau, ssa, g, mu0, 0.3)
     for row in (0, 1, 3):
         assert np.all(direct[row] == 0.0) and np.all(diffuse[row] == 0.0)
     assert np.all(direct[2] > 0) and np.all(diffuse[2] > 0)
 
 
-def test_optically_thick_layers_stay_finite():
+@SOLVERS
+def test_optically_thick_layers_stay_finite(solver):
     tau = np.full((2, 3, 2), 5000.0)
     ssa = np.array([0.5, 1.0])[None, None, :] * np.ones(tau.shape)
     g = np.full(tau.shape, 0.8)
-    direct, diffuse = surface_irradiance(tau, ssa, g, np.array([1.0, 0.2]), 0.9)
+    direct, diffuse = solver.surface_irradiance(tau, ssa, g, np.array([1.0, 0.2]), 0.9)
     assert np.all(np.isfinite(direct)) and np.all(np.isfinite(diffuse))
     assert np.all(direct == 0.0)
     assert np.all(diffuse[:, 0] < 1e-300)  # absorbing: nothing gets through
@@ -254,14 +262,15 @@ def test_beam_rate_at_the_eigenvalue_is_smooth():
     assert np.all(np.abs(np.diff(global_flux)) < 2e-3 * global_flux[2])
 
 
-def test_bad_shapes_and_values_are_rejected():
+@SOLVERS
+def test_bad_shapes_and_values_are_rejected(solver):
     tau = np.ones((2, 3, 4))
     with pytest.raises(ValueError, match="mu0"):
-        surface_irradiance(tau, tau * 0.5, tau * 0.1, np.ones(3), 0.1)
+        solver.surface_irradiance(tau, tau * 0.5, tau * 0.1, np.ones(3), 0.1)
     with pytest.raises(ValueError, match="ssa"):
-        surface_irradiance(tau, tau * 1.5, tau * 0.1, np.ones(2), 0.1)
+        solver.surface_irradiance(tau, tau * 1.5, tau * 0.1, np.ones(2), 0.1)
     with pytest.raises(ValueError, match="albedo"):
-        surface_irradiance(tau, tau * 0.5, tau * 0.1, np.ones(2), 1.2)
+        solver.surface_irradiance(tau, tau * 0.5, tau * 0.1, np.ones(2), 1.2)
 
 
 # ---- the production optics --------------------------------------------------------
