@@ -4,7 +4,7 @@ An alternative to the delta-Eddington two-stream closure of ``models.two_stream`
 the engine still uses), with the same array contract plus the phase-function mixture:
 the two-stream overestimates surface UV at low sun (erythema +8 % at 75 degrees, +11 % at
 80 degrees, UVB +12/+19 %, against 16-stream DISORT on the engine's own layers); this
-solver stays within 1.5 % there (tests/models/test_four_stream.py). Fluxes need only the
+solver stays within 2.3 % there (erythema 1.4 %; tests/models/test_four_stream.py). Fluxes need only the
 azimuth-independent Fourier component of the radiance, so that is all that is solved.
 Cost: about 7 times the two-stream per call (measured; about 110 records/s through the
 full clear-sky solve of ``models.clear_sky``).
@@ -43,8 +43,8 @@ eigenvalue ``k`` the particular solution is taken at ``k (1 +- 1e-4)``. All expo
 have non-positive arguments.
 
 Known limitations (measured against 16-stream DISORT, tests/models/test_four_stream.py):
-four streams resolve the low-sun skylight to about 1-2 % for weighted irradiances up to
-80 degrees, but single wavelengths near 300 nm at 75-80 degrees (where the flux is a
+four streams resolve the low-sun skylight to within 2.3 % for weighted irradiances up to
+80 degrees (slightly low, as DISORT with four streams is), but single wavelengths near 300 nm at 75-80 degrees (where the flux is a
 thousandth of its noon value) are off by up to about 7 %. The upward flux at the top is
 computed for the energy check only.
 
