@@ -44,8 +44,9 @@ have non-positive arguments.
 
 Known limitations (measured against 16-stream DISORT, tests/models/test_four_stream.py):
 four streams resolve the low-sun skylight to within 2.3 % for weighted irradiances up to
-80 degrees (slightly low, as DISORT with four streams is), but single wavelengths near 300 nm at 75-80 degrees (where the flux is a
-thousandth of its noon value) are off by up to about 7 %. The upward flux at the top is
+80 degrees (slightly low, as DISORT with four streams is), but single wavelengths near
+300 nm at 75-80 degrees (where the flux is a thousandth of its noon value) are off by up
+to about 7 %. The upward flux at the top is
 computed for the energy check only.
 
 Units: per unit extraterrestrial irradiance on a surface normal to the beam; the direct
