@@ -5,10 +5,11 @@ Composition (``spectral_irradiance_direct_solve``)
        et al. 1999 Rayleigh, DBM ozone cross sections, Ångström aerosol) on the 27 layers
        of the AFGL 1986 U.S. Standard atmosphere (``models.atmosphere``).
     2. Pseudo-spherical direct-beam air mass per layer (``models.atmosphere.beam_air_mass``).
-    3. Multiple scattering by the multi-layer delta-Eddington two-stream solver
-       (``models.two_stream.surface_irradiance``) over a Lambertian surface of the given
-       UV albedo, giving direct and diffuse horizontal flux per unit extraterrestrial
-       irradiance.
+    3. Multiple scattering by the multi-layer four-stream discrete-ordinates solver
+       (``models.four_stream.surface_irradiance``; Rayleigh + Henyey-Greenstein phase
+       function, shares from :func:`rayleigh_scattering_fraction`) over a Lambertian
+       surface of the given UV albedo, giving direct and diffuse horizontal flux per unit
+       extraterrestrial irradiance.
     4. Multiplied by the ASTM G173-03 extraterrestrial spectrum at 1 AU
        (``models.spectral_grid``) and by 1 / d² for the Earth–Sun distance d in AU.
 
@@ -62,6 +63,20 @@ def _as_record_arrays(solar_zenith_deg, *values):
     return (zenith, *(np.broadcast_to(np.asarray(v, dtype=float), zenith.shape) for v in values))
 
 
+def rayleigh_scattering_fraction(layer, pressure_hpa) -> np.ndarray:
+    """Share of each layer's scattering by molecules, (N, L, W), for ``layer`` =
+    ``models.optics.layer_optics(...)`` of records at surface pressure ``pressure_hpa`` (N,):
+    the Rayleigh optical depth of the layer (Bodhaine et al. 1999, as in ``models.optics``)
+    over its total scattering optical depth (1 where nothing scatters)."""
+    layers = atmosphere.standard_layers()
+    rayleigh = (atmosphere.pressure_scale(np.atleast_1d(pressure_hpa))[:, None, None]
+                * (layers.air_column_fraction[:, None]
+                   * optics.rayleigh_optical_depth(WAVELENGTH_NM))[None])
+    scattering = layer.tau * layer.ssa
+    return np.where(scattering > 0, np.minimum(rayleigh / np.where(scattering > 0, scattering, 1.0),
+                                               1.0), 1.0)
+
+
 def spectral_irradiance_direct_solve(solar_zenith_deg, earth_sun_distance_au, ozone_du,
                                      pressure_hpa, surface_albedo, aod_550, angstrom_exponent,
                                      single_scattering_albedo, asymmetry_factor) -> ClearSkySpectrum:
@@ -70,7 +85,7 @@ def spectral_irradiance_direct_solve(solar_zenith_deg, earth_sun_distance_au, oz
     See the module docstring for the method and units. Every argument is (N,) or a scalar;
     ``surface_albedo`` may also be (N, W).
     """
-    from models.two_stream import surface_irradiance
+    from models.four_stream import surface_irradiance
 
     zenith, distance, ozone, pressure, aod, alpha, ssa, g = _as_record_arrays(
         solar_zenith_deg, earth_sun_distance_au, ozone_du, pressure_hpa, aod_550,
@@ -90,7 +105,8 @@ def spectral_irradiance_direct_solve(solar_zenith_deg, earth_sun_distance_au, oz
                                     ssa[rows], g[rows])
         direct_rel, diffuse_rel = surface_irradiance(
             layer.tau, layer.ssa, layer.g, np.cos(np.deg2rad(zenith[rows])), albedo[rows],
-            beam_air_mass=atmosphere.beam_air_mass(zenith[rows]))
+            beam_air_mass=atmosphere.beam_air_mass(zenith[rows]),
+            rayleigh_scattering_fraction=rayleigh_scattering_fraction(layer, pressure[rows]))
         scale = top_of_atmosphere[None, :] / distance[rows, None] ** 2
         direct[rows] = direct_rel * scale
         diffuse[rows] = diffuse_rel * scale

@@ -1,7 +1,8 @@
 """Multi-layer four-stream discrete-ordinates solver for surface fluxes (azimuthal mean).
 
-An alternative to the delta-Eddington two-stream closure of ``models.two_stream`` (which
-the engine still uses), with the same array contract plus the phase-function mixture:
+The engine's solver (``models.clear_sky`` and the precomputed table), in place of the
+delta-Eddington two-stream closure of ``models.two_stream``, with the same array contract
+plus the phase-function mixture:
 the two-stream overestimates surface UV at low sun (erythema +8 % at 75 degrees, +11 % at
 80 degrees, UVB +12/+19 %, against 16-stream DISORT on the engine's own layers); this
 solver stays within 2.3 % there (erythema 1.4 %; tests/models/test_four_stream.py). Fluxes need only the

@@ -1,8 +1,8 @@
 """Precomputed clear-sky solver output and its interpolation (the fast clear-sky path).
 
 The full solve (``models.clear_sky.spectral_irradiance_direct_solve``: layer optics,
-pseudo-spherical beam, delta-Eddington two-stream) runs at a few hundred records per
-second. For the default aerosol type (Ångström exponent, single scattering albedo and
+pseudo-spherical beam, four-stream discrete ordinates of ``models.four_stream``) runs
+at about a hundred records per second. For the default aerosol type (Ångström exponent, single scattering albedo and
 asymmetry factor of ``models.optics``) the surface fluxes depend on four record
 inputs only: solar zenith, total ozone, surface pressure and AOD(550). This table holds,
 per wavelength of ``models.spectral_grid.WAVELENGTH_NM``:
@@ -55,17 +55,21 @@ import scipy.sparse
 
 from models import MODEL_VERSION, atmosphere, optics
 from models.spectral_grid import WAVELENGTH_NM, extraterrestrial_spectrum_w_m2_nm
-from models.two_stream import apply_surface_albedo, transfer_components
+from models.clear_sky import rayleigh_scattering_fraction
+from models.four_stream import transfer_components
+from models.two_stream import apply_surface_albedo
 
 TABLE_FILE = Path(__file__).with_name("data") / "irradiance_table.npz"
 
 ZENITH_NODES_DEG = np.array([
-    0.0, 12.0, 22.0, 32.0, 38.75, 44.0, 48.5, 52.5, 56.0, 59.0, 61.75, 64.25, 66.25, 68.25,
+    0.0, 12.0, 22.0, 27.0, 32.0, 35.5, 38.75, 41.5, 44.0, 46.25, 48.5, 50.5, 52.5, 54.25, 56.0,
+    59.0, 61.75, 64.25, 66.25, 68.25,
     70.25, 71.75, 73.25, 74.75, 76.0, 77.25, 78.25, 79.25, 80.25, 81.0, 81.75, 82.5, 83.25,
     83.75, 84.5, 85.0, 85.5, 86.0, 86.25, 86.75, 87.0, 87.5, 87.75, 88.25, 88.5, 88.75, 89.0,
     89.25, 89.5,
 ])
-"""Solar zenith nodes, degrees: about evenly spaced in ln(air mass), rounded."""
+"""Solar zenith nodes, degrees: about evenly spaced in ln(air mass), rounded, with extra
+nodes at 22-56 degrees, where below 290 nm the global flux turns from beam to skylight."""
 OZONE_NODES_DU = np.array([100.0, 130.0, 165.0, 205.0, 250.0, 300.0, 360.0, 430.0, 510.0,
                            600.0, 700.0])
 """Total ozone nodes, DU (denser at low ozone, where the diffuse flux bends most)."""
@@ -112,7 +116,9 @@ def fingerprint() -> str:
     layer = optics.layer_optics(np.array([320.0, 320.0]), 1000.0, 0.3, *DEFAULT_AEROSOL_TYPE)
     air_mass = atmosphere.beam_air_mass(zenith)
     parts = transfer_components(layer.tau, layer.ssa, layer.g, np.cos(np.deg2rad(zenith)),
-                                beam_air_mass=air_mass)
+                                beam_air_mass=air_mass,
+                                rayleigh_scattering_fraction=rayleigh_scattering_fraction(
+                                    layer, np.full(2, 1000.0)))
     for array in (layer.tau, layer.ssa, layer.g, air_mass, parts.direct_horizontal,
                   parts.diffuse_down_black_surface, parts.spherical_albedo):
         digest.update(np.round(np.asarray(array, dtype=np.float64), 9).tobytes())
@@ -160,8 +166,11 @@ def compute_table() -> dict[str, np.ndarray]:
             aod = np.repeat(AOD_NODES, n_z)
             layer = optics.layer_optics(np.full(aod.size, ozone_du), pressure_hpa, aod,
                                         *DEFAULT_AEROSOL_TYPE)
-            parts = transfer_components(layer.tau, layer.ssa, layer.g, np.tile(mu0, n_a),
-                                        beam_air_mass=np.tile(air_mass, (n_a, 1)))
+            parts = transfer_components(
+                layer.tau, layer.ssa, layer.g, np.tile(mu0, n_a),
+                beam_air_mass=np.tile(air_mass, (n_a, 1)),
+                rayleigh_scattering_fraction=rayleigh_scattering_fraction(
+                    layer, np.full(aod.size, pressure_hpa)))
             direct = parts.direct_horizontal.reshape(n_a, n_z, n_w) / mu0[None, :, None]
             global_black = (parts.direct_horizontal
                             + parts.diffuse_down_black_surface).reshape(n_a, n_z, n_w)

@@ -2,14 +2,14 @@
 
 Runs the full solve of ``models.irradiance_table.compute_table`` (layer optics of
 ``models.optics`` on the AFGL 1986 U.S. Standard layers, pseudo-spherical beam air
-masses, the delta-Eddington two-stream solver of ``models.two_stream``) on every node
+masses, the four-stream discrete-ordinates solver of ``models.four_stream``) on every node
 of the table's axes for the default aerosol type, and writes float32 arrays with the
 fingerprint (``models.irradiance_table.fingerprint``) and provenance in ``meta_*``
 entries.
 
 Run from the repository root:  python models/data/build_irradiance_table.py [output]
 Deterministic; rerun it after any change to the optics, the atmosphere, the solver or
-the table axes (the staleness test in tests/models/test_irradiance_table.py says when).
+the table axes (about three minutes; the staleness test in tests/models/test_irradiance_table.py says when).
 """
 from __future__ import annotations
 
@@ -31,8 +31,9 @@ PROVENANCE = {
     "method": (
         "models.irradiance_table.compute_table: layer optics (Bodhaine et al. 1999 Rayleigh, "
         "DBM ozone cross sections, Angstrom aerosol) on the AFGL 1986 US Standard layers, "
-        "pseudo-spherical beam, multi-layer delta-Eddington two-stream (Joseph, Wiscombe & "
-        "Weinman 1976; Meador & Weaver 1980; adding method), black surface plus spherical albedo"
+        "pseudo-spherical beam, multi-layer four-stream discrete ordinates (double-Gauss, "
+        "delta-M, Wiscombe 1977; Stamnes & Swanson 1981 reduction; adding method), "
+        "Rayleigh + Henyey-Greenstein phase function, black surface plus spherical albedo"
     ),
     "axes": "zenith_deg, ozone_du, pressure_hpa, aod_550 (see models/irradiance_table.py)",
     "units": "log of flux per unit extraterrestrial irradiance normal to the beam; "
