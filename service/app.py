@@ -26,6 +26,9 @@ def create_app(config: dict[str, Any] | None = None) -> Flask:
     metrics.init_app(app)
     cache.init_app(app)
     _register_blueprints(app)
+    # Load the engine's precomputed table now, not on the first request (and, with
+    # gunicorn's preload, once before the workers fork).
+    import_module("service.routes_health").engine_check()
     return app
 
 

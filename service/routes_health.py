@@ -7,8 +7,6 @@ engine still computes every record, only slower.
 """
 from __future__ import annotations
 
-import importlib
-import importlib.util
 import time
 from typing import Any
 
@@ -17,10 +15,6 @@ from flask import Blueprint, current_app, jsonify
 from models import MODEL_VERSION
 
 blueprint = Blueprint("health", __name__)
-
-_TABLE_LOADERS = ("default_table", "load_default_table", "load_table")
-"""Functions of ``models.irradiance_table`` that load (and memoise) its table, tried in order."""
-
 
 @blueprint.get("/livez")
 def livez():
@@ -36,19 +30,13 @@ def engine_check() -> dict[str, Any]:
     """
     started = time.perf_counter()
     try:
-        importlib.import_module("models.engine")
-        table = "none"
-        if importlib.util.find_spec("models.irradiance_table") is not None:
-            module = importlib.import_module("models.irradiance_table")
-            loader = next((getattr(module, name) for name in _TABLE_LOADERS if hasattr(module, name)), None)
-            if loader is None:
-                table = "imported"
-            else:
-                try:
-                    loader()
-                    table = "loaded"
-                except FileNotFoundError:
-                    table = "missing (direct solve)"
+        from models import engine, irradiance_table  # noqa: F401  (importable is part of ready)
+
+        try:
+            irradiance_table.load_table()  # memoised: loads once per process
+            table = "loaded"
+        except FileNotFoundError:
+            table = "missing (direct solve)"
     except Exception as error:  # readiness must report, not raise
         return {"ok": False, "error": f"{type(error).__name__}: {error}"}
     return {"ok": True, "irradiance_table": table,

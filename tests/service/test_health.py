@@ -19,15 +19,17 @@ def test_readyz_reports_engine_and_cache(client):
 
 
 def test_readyz_is_503_when_the_engine_cannot_load(client, monkeypatch):
-    def broken(name):
-        raise ImportError(f"no module named {name}")
+    from models import irradiance_table
 
-    monkeypatch.setattr(routes_health.importlib, "import_module", broken)
+    def broken():
+        raise ValueError("irradiance table is truncated")
+
+    monkeypatch.setattr(irradiance_table, "load_table", broken)
     response = client.get("/readyz")
     assert response.status_code == 503
     body = response.get_json()
     assert body["status"] == "unready"
-    assert "ImportError" in body["checks"]["engine"]["error"]
+    assert "ValueError: irradiance table is truncated" in body["checks"]["engine"]["error"]
 
 
 class _SilentCache:
