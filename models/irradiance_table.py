@@ -20,7 +20,8 @@ per wavelength of ``models.spectral_grid.WAVELENGTH_NM``:
 Any Lambertian surface albedo a, grey or spectral, is then applied analytically with
 ``global(a) = global(0) / (1 - a S)`` (Tanré et al. 1979, *Appl. Opt.* 18:3587; 6S,
 Vermote et al. 1997), implemented once in ``models.two_stream.apply_surface_albedo``.
-In the two-stream adding scheme that relation is exact, so the table adds
+In the adding scheme of the solver (``models.four_stream``) that relation is exact, since a
+Lambertian surface reflects isotropically, so the table adds
 interpolation error only.
 
 Interpolation is multilinear on logarithms of the fluxes (slant optical depths are close

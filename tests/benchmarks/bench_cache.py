@@ -14,7 +14,7 @@ once, its orchards spread over 500 distinct cells of 0.05° × 2 min. Printed:
    Target: warm/cold ≥ 5× for both backends. Run twice: with the default aerosol (the
    engine's precomputed-table path, a few microseconds a cell, so HTTP parsing and
    serialisation dominate both runs) and with a client-supplied aerosol that sends each
-   cell through the full two-stream solve. "cold" already benefits from the cache's
+   cell through the full solve. "cold" already benefits from the cache's
    dedupe (500 engine rows for 10 000 records), so the uncached (UVDOSE_CACHE=off) run is
    printed too, with the uncached/warm ratio.
 
@@ -134,7 +134,7 @@ def _post(url: str, body: bytes) -> tuple[int, float]:
 
 CLIENT_AEROSOL = {"angstrom_exponent": 1.0, "single_scattering_albedo": 0.85}
 """A client-measured aerosol (an invented sun-photometer reading) outside the precomputed
-table's default aerosol type, so that the engine takes the full two-stream solve."""
+table's default aerosol type, so that the engine takes the full solve."""
 
 
 def _body(columns: dict[str, np.ndarray], aerosol: dict[str, float] | None = None) -> bytes:
@@ -148,7 +148,7 @@ def _body(columns: dict[str, np.ndarray], aerosol: dict[str, float] | None = Non
 def bench_http(columns: dict[str, np.ndarray], repeats: int, aerosol: dict[str, float] | None = None) -> None:
     body = _body(columns, aerosol)
     warmup = _body(scenario(200, 50, seed=1), aerosol)
-    print("HTTP, " + ("client aerosol (full two-stream solve per cell)" if aerosol
+    print("HTTP, " + ("client aerosol (full solve per cell)" if aerosol
                       else "default aerosol (precomputed-table engine path)"))
     uncached_s = None
     for backend in ("off", "redis", "memory"):
