@@ -30,6 +30,8 @@ from __future__ import annotations
 import numpy as np
 from pvlib import clearsky
 
+from models.solar_geometry import solar_position, surface_pressure_hpa
+
 CMF_RANGE = (0.0, 1.5)
 """Accepted cloud modification factors. Above 1: broken-cloud enhancement, observed
 for minutes at a time (e.g. Feister et al. 2015, Atmosphere 6:1211); 1.5 bounds
@@ -116,6 +118,33 @@ def cmf_from_global_irradiance(measured_ghi_w_m2, solar_zenith_deg, pressure_hpa
     _fail("global_horizontal_w_m2", ghi, np.nan_to_num(cmf, nan=0.0) > CMF_RANGE[1],
           "at most 1.5 times the clear-sky value (check units and sensor)")
     return cmf
+
+
+def cmf_from_measured_global_irradiance(measured_ghi_w_m2, time_unix_s, latitude_deg, longitude_deg,
+                                        elevation_m, pressure_hpa, exponent: float = 1.0):
+    """UV CMF per record from a measured broadband GHI (W m⁻²) at a place and time.
+
+    The same relation as :func:`cmf_from_global_irradiance`, with the solar zenith from
+    ``models.solar_geometry`` (NREL SPA) and the surface pressure resolved as the engine
+    resolves it (given, else from elevation). NaN inputs mean "not given".
+
+    Returns ``(cmf, implausible)``: ``cmf`` (N,) is NaN where no measurement was given or
+    the sun is below 5° (not determinable); ``implausible`` (N,) marks measurements above
+    1.5 times the clear-sky value, which no cloud enhancement reaches (``CMF_RANGE``) and
+    which are most likely a unit or sensor error. Those records are left to the caller to
+    reject; their ``cmf`` is NaN.
+    """
+    ghi = np.asarray(measured_ghi_w_m2, dtype=float)
+    elevation = np.where(np.isnan(elevation_m), 0.0, elevation_m)
+    pressure = surface_pressure_hpa(elevation, pressure_hpa)
+    zenith = solar_position(time_unix_s, latitude_deg, longitude_deg, elevation, pressure).zenith_deg
+    usable = ~np.isnan(ghi) & ((90.0 - zenith) >= MIN_SOLAR_ELEVATION_FOR_CLEAR_SKY_INDEX_DEG)
+    clear = clear_sky_global_horizontal_w_m2(zenith, pressure)
+    cmf = np.full(ghi.shape, np.nan)
+    cmf[usable] = (ghi[usable] / clear[usable]) ** exponent
+    implausible = cmf > CMF_RANGE[1]
+    cmf[implausible] = np.nan
+    return cmf, implausible
 
 
 def resolve_cmf(cloud_modification_factor=None, cloud_cover_fraction=None,

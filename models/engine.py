@@ -19,7 +19,7 @@ import numpy as np
 
 from models import MODEL_VERSION, action_spectra, clear_sky, optics, receivers, surfaces, uv_index
 from models.ozone_grids import OzoneResolver, default_resolver
-from models.solar_geometry import pressure_from_elevation_hpa, solar_position
+from models.solar_geometry import solar_position, surface_pressure_hpa
 from models.spectral_grid import WAVELENGTH_NM
 
 DEFAULT_SPECTRA: tuple[str, ...] = ("erythema", "actinic_icnirp", "plant_damage")
@@ -207,7 +207,7 @@ def compute(
     """
     c = conditions
     elevation_m = _given(c.elevation_m, 0.0)
-    pressure_hpa = _given(c.pressure_hpa, pressure_from_elevation_hpa(elevation_m))
+    pressure_hpa = surface_pressure_hpa(elevation_m, c.pressure_hpa)
     sun = solar_position(c.time_unix_s, c.latitude_deg, c.longitude_deg, elevation_m, pressure_hpa)
 
     resolver = ozone_resolver or default_resolver()

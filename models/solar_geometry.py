@@ -264,3 +264,10 @@ def pressure_from_elevation_hpa(elevation_m) -> np.ndarray:
     pressure = pressure * np.exp(-_G0_M_S2 * _MOLAR_MASS_KG_MOL * above
                                  / (_GAS_CONSTANT_J_MOL_K * tropopause_temperature_k))
     return np.asarray(pressure, dtype=float)
+
+
+def surface_pressure_hpa(elevation_m, pressure_hpa) -> np.ndarray:
+    """Surface pressure (hPa) per record: the given value, or where it is NaN ("not given")
+    the standard-atmosphere value at ``elevation_m`` (:func:`pressure_from_elevation_hpa`)."""
+    given = np.asarray(pressure_hpa, dtype=float)
+    return np.where(np.isnan(given), pressure_from_elevation_hpa(elevation_m), given)

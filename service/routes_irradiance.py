@@ -13,6 +13,7 @@ from flask import Blueprint, Response, current_app, request
 from marshmallow import ValidationError, fields, validate, validates
 
 from models import MODEL_VERSION
+from models import clouds
 from service import metrics
 from service.batch_io import (
     CSV_MEDIA_TYPE,
@@ -20,12 +21,15 @@ from service.batch_io import (
     OneOfRegistry,
     OptionsSchema,
     StrictBoolean,
+    StrictNumber,
+    between,
     csv_response,
     json_response,
     negotiate,
     read_batch,
     rows_from_columns,
 )
+from service.problems import FieldError, Problem
 
 CAUTION = (
     "Estimates for planning, computed from a model atmosphere: not a measurement, and not "
@@ -52,7 +56,13 @@ def default_spectra() -> list[str]:
 
 
 class IrradianceRecordSchema(ConditionsRecordSchema):
-    """One record of ``POST /v1/irradiance``: the shared conditions fields, nothing more."""
+    """One record of ``POST /v1/irradiance``: the shared conditions fields, and a measured
+    broadband global horizontal irradiance from which the cloud factor can be derived."""
+
+    measured_ghi_w_m2 = StrictNumber(validate=between(0, 1500), metadata={"units": "W m-2"})
+
+    exclusive_fields = ConditionsRecordSchema.exclusive_fields + (
+        ("cloud_modification_factor", "measured_ghi_w_m2"),)
 
 
 class IrradianceOptionsSchema(OptionsSchema):
@@ -166,6 +176,32 @@ def result_rows(columns: Mapping[str, Any], spectra: list[str], spectrum) -> lis
     return rows_from_columns(columns, nest="effective_w_m2")
 
 
+def with_cloud_factor_from_measurement(columns: Mapping[str, np.ndarray], ids: np.ndarray) -> dict[str, np.ndarray]:
+    """Replace a ``measured_ghi_w_m2`` column by the cloud factor it implies
+    (:func:`models.clouds.cmf_from_measured_global_irradiance`), before the cache and the
+    engine see the batch. A measurement above 1.5 times the clear-sky value rejects the
+    batch, naming each such record."""
+    columns = dict(columns)
+    measured = columns.pop("measured_ghi_w_m2", None)
+    if measured is None or np.isnan(measured).all():
+        return columns
+    n = len(measured)
+    nan = np.full(n, np.nan)
+    cmf, implausible = clouds.cmf_from_measured_global_irradiance(
+        measured, columns["time_unix_s"], columns["latitude_deg"], columns["longitude_deg"],
+        columns.get("elevation_m", nan), columns.get("pressure_hpa", nan))
+    if implausible.any():
+        raise Problem(422, "invalid-records", "The batch has invalid records", "Nothing was computed.",
+                      [FieldError(field="measured_ghi_w_m2", index=int(i),
+                                  id=ids[i] if isinstance(ids[i], str) else None,
+                                  reason="is more than 1.5 times the clear-sky global irradiance "
+                                         "at that place and time: check units and sensor")
+                       for i in np.flatnonzero(implausible)])
+    given = columns.get("cloud_modification_factor", nan)
+    columns["cloud_modification_factor"] = np.where(np.isnan(given), cmf, given)
+    return columns
+
+
 def run(columns: Mapping[str, np.ndarray], ids: np.ndarray, spectra: list[str], include_spectrum: bool,
         through: Callable | None = None,
         ozone_resolver=None) -> tuple[dict[str, Any], np.ndarray | None, np.ndarray | None]:
@@ -192,7 +228,7 @@ def irradiance() -> Response:
                                max_records=current_app.config["UVDOSE_MAX_RECORDS"])
     batch, options = batch_request.batch, batch_request.options
     spectra = options.get("spectra") or default_spectra()
-    columns, wavelength_nm, spectrum = run(batch.columns, batch.ids, spectra, options["include_spectrum"],
+    columns, wavelength_nm, spectrum = run(with_cloud_factor_from_measurement(batch.columns, batch.ids), batch.ids, spectra, options["include_spectrum"],
                                            through=compute_through_cache,
                                            ozone_resolver=current_app.extensions.get("uvdose_ozone"))
     metrics.count_records(ROUTE, len(batch))

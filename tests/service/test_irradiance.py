@@ -372,3 +372,50 @@ def test_an_operator_ozone_grid_in_the_app_config_is_used_and_named(tmp_path, ma
     assert result["ozone_source"] == "grid:combe_basse_ozone.csv"
     assert result["ozone_du"] == pytest.approx(321)
     assert one(client, ozone_du=280)["ozone_source"] == "client"  # the client's value comes first
+
+
+# --- cloud factor from a measured global irradiance ------------------------------------
+
+def _clear_sky_ghi(record=ORCHARD):
+    """Broadband clear-sky GHI at a record by pvlib's simplified Solis model (Ineichen 2008;
+    reference library), with the SPA zenith from pvlib and the standard-atmosphere pressure."""
+    import pandas as pd
+    from pvlib import atmosphere, clearsky, solarposition
+
+    time = pd.DatetimeIndex([record["time"]])
+    pressure_pa = atmosphere.alt2pres(record["elevation_m"])
+    zenith = solarposition.get_solarposition(time, record["lat"], record["lon"], record["elevation_m"],
+                                             pressure=pressure_pa)["apparent_zenith"].iloc[0]
+    return float(clearsky.simplified_solis(90.0 - zenith, pressure=pressure_pa)["ghi"])
+
+
+def test_a_measured_global_irradiance_sets_the_cloud_factor_to_the_clear_sky_index(exact):
+    # Clear-sky index K = GHI_measured / GHI_clear applied to UV (Thiel et al. 1997):
+    # half the clear-sky GHI halves the UV Index; a clear-sky reading leaves it alone.
+    clear = _clear_sky_ghi()
+    reference = one(exact)
+    at_clear, at_half = (one(exact, measured_ghi_w_m2=clear * k) for k in (1.0, 0.5))
+    assert at_clear["cloud_factor"] == pytest.approx(1.0, abs=0.01)
+    assert at_half["cloud_factor"] == pytest.approx(0.5, abs=0.005)
+    assert at_half["uv_index"] == pytest.approx(at_half["cloud_factor"] * reference["uv_index"], rel=1e-9)
+
+
+def test_an_implausible_measurement_or_one_beside_a_cloud_factor_is_rejected(exact):
+    morning = {**ORCHARD, "time": "2026-06-21T08:00:00+02:00"}
+    response = post(exact, {"records": [{**morning, "id": "station-1",
+                                         "measured_ghi_w_m2": 1.6 * _clear_sky_ghi(morning)}]})
+    assert response.status_code == 422
+    error, = response.get_json()["errors"]
+    assert (error["index"], error["id"], error["field"]) == (0, "station-1", "measured_ghi_w_m2")
+    assert "clear-sky" in error["reason"]
+    response = post(exact, {"records": [{**ORCHARD, "measured_ghi_w_m2": 500.0, "cloud_factor": 0.5}]})
+    assert response.status_code == 422
+    assert response.get_json()["errors"][0]["field"] in ("measured_ghi_w_m2", "cloud_factor")
+
+
+def test_a_measurement_with_the_sun_too_low_leaves_the_sky_clear(exact):
+    # Below 5° solar elevation the clear-sky index is not determinable (common practice).
+    low_sun = {**ORCHARD, "time": "2026-06-21T05:40:00+02:00"}
+    response = post(exact, {"records": [{**low_sun, "measured_ghi_w_m2": 20.0}]})
+    assert response.status_code == 200
+    assert response.get_json()["results"][0]["cloud_factor"] == 1.0
