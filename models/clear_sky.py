@@ -113,15 +113,48 @@ def spectral_irradiance_direct_solve(solar_zenith_deg, earth_sun_distance_au, oz
     return ClearSkySpectrum(WAVELENGTH_NM, direct, diffuse)
 
 
+class FullSolveLimitExceeded(Exception):
+    """More records need the full solve than the caller's :class:`FullSolveBudget` allows."""
+
+    def __init__(self, requested: int, limit: int):
+        super().__init__(f"{requested} records need the full radiative-transfer solve; "
+                         f"at most {limit} are allowed")
+        self.requested = requested
+        self.limit = limit
+
+
+class FullSolveBudget:
+    """How many records one caller (e.g. one HTTP request) lets the full solve take.
+
+    The full solve runs at about 100 records/s per core (``tests/benchmarks/bench_engine.py``)
+    against tens of thousands for the precomputed table, so a large batch of records outside
+    the table (a client aerosol type, pressure below 500 hPa, AOD above 2, ozone below
+    100 DU, the sun within half a degree of the horizon) could outlast any request timeout.
+    :meth:`spend` raises :class:`FullSolveLimitExceeded` before such work starts.
+    """
+
+    def __init__(self, limit: int):
+        self.limit = int(limit)
+        self.used = 0
+
+    def spend(self, records: int) -> None:
+        if self.used + records > self.limit:
+            raise FullSolveLimitExceeded(self.used + records, self.limit)
+        self.used += records
+
+
 def spectral_irradiance(solar_zenith_deg, earth_sun_distance_au, ozone_du, pressure_hpa,
                         surface_albedo, aod_550, angstrom_exponent, single_scattering_albedo,
-                        asymmetry_factor, method: str = "auto") -> ClearSkySpectrum:
+                        asymmetry_factor, method: str = "auto",
+                        full_solve_budget: FullSolveBudget | None = None) -> ClearSkySpectrum:
     """Clear-sky direct and diffuse horizontal spectral irradiance, W m⁻² nm⁻¹, (N, W).
 
     ``method``: "direct" runs the full solve (:func:`spectral_irradiance_direct_solve`);
     "table" interpolates the precomputed table of ``models.irradiance_table``; "auto" uses
     the table for records inside its range and the full solve for the rest; "table"
     refuses a daytime record outside the table, naming the record and the field.
+    ``full_solve_budget``, when given, bounds the records the "auto" method sends to the
+    full solve.
     """
     arguments = (solar_zenith_deg, earth_sun_distance_au, ozone_du, pressure_hpa,
                  surface_albedo, aod_550, angstrom_exponent, single_scattering_albedo,
@@ -131,7 +164,12 @@ def spectral_irradiance(solar_zenith_deg, earth_sun_distance_au, ozone_du, press
     if method in ("auto", "table"):
         from models import irradiance_table
 
-        fallback = spectral_irradiance_direct_solve if method == "auto" else None
+        fallback = None
+        if method == "auto":
+            def fallback(*uncovered):
+                if full_solve_budget is not None:
+                    full_solve_budget.spend(np.atleast_1d(uncovered[0]).size)
+                return spectral_irradiance_direct_solve(*uncovered)
         direct, diffuse = irradiance_table.spectral_irradiance(*arguments, direct_solve=fallback)
         return ClearSkySpectrum(WAVELENGTH_NM, direct, diffuse)
     raise ValueError(f"unknown clear-sky method {method!r}; expected one of {METHODS}")

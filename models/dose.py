@@ -60,14 +60,15 @@ error against a 1-minute trapezoid on the engine (well under 1 %)."""
 
 
 def engine_evaluator(spectra: Sequence[str], transmittance=None, method: str = "auto",
-                     ozone_resolver=None) -> Evaluator:
-    """Evaluator that runs ``models.engine.compute`` on sample columns."""
+                     ozone_resolver=None, full_solve_budget=None) -> Evaluator:
+    """Evaluator that runs ``models.engine.compute`` on sample columns (one
+    ``full_solve_budget``, if given, shared by every call)."""
     from models import engine
 
     def evaluate(columns: Columns) -> Columns:
         result = engine.compute(engine.Conditions.from_columns(columns), spectra=tuple(spectra),
                                 transmittance=transmittance, ozone_resolver=ozone_resolver,
-                                method=method)
+                                method=method, full_solve_budget=full_solve_budget)
         return result.as_columns()
 
     return evaluate

@@ -191,6 +191,7 @@ def compute(
     transmittance: np.ndarray | None = None,
     ozone_resolver: OzoneResolver | None = None,
     method: str = "auto",
+    full_solve_budget: clear_sky.FullSolveBudget | None = None,
 ) -> EngineResult:
     """Compute UV quantities for N records.
 
@@ -204,6 +205,8 @@ def compute(
     ozone_resolver : where ozone comes from when a record gives none; defaults to
         :func:`models.ozone_grids.default_resolver` (operator grids, then climatology).
     method : clear-sky method, see :func:`models.clear_sky.spectral_irradiance`.
+    full_solve_budget : bounds the records sent to the full solve (see
+        :class:`models.clear_sky.FullSolveBudget`); ``None`` for no bound.
     """
     c = conditions
     elevation_m = _given(c.elevation_m, 0.0)
@@ -225,6 +228,7 @@ def compute(
         _given(c.single_scattering_albedo, optics.DEFAULT_SINGLE_SCATTERING_ALBEDO),
         _given(c.asymmetry_factor, optics.DEFAULT_ASYMMETRY_FACTOR),
         method=method,
+        full_solve_budget=full_solve_budget,
     )
     # The cloud modification factor scales direct and diffuse alike (see models.clouds).
     cmf = _given(c.cloud_modification_factor, 1.0)

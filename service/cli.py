@@ -146,6 +146,11 @@ def run_batch(
     del data
 
     batch = batch_request.batch
+    try:  # whole-file checks first, so a bad record is reported by its index in the file
+        all_columns = irr.with_cloud_factor_from_measurement(batch.columns, batch.ids)
+    except Problem as problem:
+        sys.stderr.write(response_for(problem).get_data(as_text=True) + "\n")
+        return EXIT_INVALID
     chosen = batch_request.options.get("spectra") or irr.default_spectra()
     with_spectrum = batch_request.options["include_spectrum"]
     out_type = _media_type(target, output_format)
@@ -156,7 +161,7 @@ def run_batch(
         with tqdm(total=n, unit="record", disable=not show, file=sys.stderr) as bar:
             for start in range(0, n, chunk_size):
                 part = slice(start, min(start + chunk_size, n))
-                columns = {name: values[part] for name, values in batch.columns.items()}
+                columns = {name: values[part] for name, values in all_columns.items()}
                 out, wavelength_nm, spectrum = irr.run(columns, batch.ids[part], chosen, with_spectrum)
                 first = start == 0
                 if out_type == batch_io.CSV_MEDIA_TYPE:

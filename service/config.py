@@ -44,6 +44,9 @@ def _text_or_none(text: str) -> str | None:
 SETTINGS: tuple[Setting, ...] = (
     Setting("UVDOSE_MAX_RECORDS", "UVDOSE_MAX_RECORDS", 10_000, _positive_int,
             "Most records accepted in one request; larger batches get a 413 problem."),
+    Setting("UVDOSE_MAX_FULL_SOLVE_RECORDS", "UVDOSE_MAX_FULL_SOLVE_RECORDS", 1_000, _positive_int,
+            "Most records (after the cache, and counting dose samples) one request may send to "
+            "the full radiative-transfer solve, about 100 records/s per core; more get a 413 problem."),
     Setting("UVDOSE_MAX_BODY_BYTES", "MAX_CONTENT_LENGTH", 16 * 1024 * 1024, _positive_int,
             "Largest request body in bytes; larger bodies get a 413 problem."),
     Setting("UVDOSE_MAX_ERRORS_LISTED", "UVDOSE_MAX_ERRORS_LISTED", 10_000, _positive_int,

@@ -15,6 +15,8 @@ from typing import Any
 from flask import Flask, Response
 from werkzeug.exceptions import HTTPException
 
+from models.clear_sky import FullSolveLimitExceeded
+
 PROBLEM_MEDIA_TYPE = "application/problem+json"
 TYPE_PREFIX = "urn:uvdose:problem:"
 
@@ -112,6 +114,15 @@ def init_app(app: Flask) -> None:
     @app.errorhandler(Problem)
     def _problem(problem: Problem) -> Response:
         return response_for(problem, app.config.get("UVDOSE_MAX_ERRORS_LISTED"))
+
+    @app.errorhandler(FullSolveLimitExceeded)
+    def _full_solve(error: FullSolveLimitExceeded) -> Response:
+        problem = Problem(413, "too-many-full-solve-records", "Too many records for the full solve",
+                          f"{error.requested} records (or dose samples) fall outside the precomputed "
+                          f"table and need the full radiative-transfer solve; at most {error.limit} "
+                          "are allowed per request. Split the batch, or use the default aerosol type.",
+                          extensions={"max_full_solve_records": error.limit})
+        return response_for(problem)
 
     @app.errorhandler(HTTPException)
     def _http(error: HTTPException) -> Response:

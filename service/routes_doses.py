@@ -23,7 +23,7 @@ import numpy as np
 from flask import Blueprint, Response, current_app, request
 from marshmallow import ValidationError, fields, validate, validates
 
-from models import MODEL_VERSION, clouds, dose, exposure, filters, routes
+from models import MODEL_VERSION, clear_sky, clouds, dose, exposure, filters, routes
 from models.spectral_grid import WAVELENGTH_NM
 from service import metrics
 from service.batch_io import (
@@ -118,7 +118,9 @@ def _transmittance(options: Mapping[str, Any], default: str | None = None):
 
 def _evaluator(spectra, transmittance, label: str, kind: str) -> dose.Evaluator:
     resolver = current_app.extensions.get("uvdose_ozone")
-    compute = dose.engine_evaluator(spectra, transmittance=transmittance, ozone_resolver=resolver)
+    budget = clear_sky.FullSolveBudget(current_app.config["UVDOSE_MAX_FULL_SOLVE_RECORDS"])
+    compute = dose.engine_evaluator(spectra, transmittance=transmittance, ozone_resolver=resolver,
+                                    full_solve_budget=budget)
     context = (f"doses:{kind};spectra={','.join(spectra)};glazing={label};"
                f"ozone={getattr(resolver, 'fingerprint', 'default')}")
 

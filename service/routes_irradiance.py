@@ -103,15 +103,20 @@ _USED_OUTPUTS = (
 )
 
 
-def engine_call(spectra: list[str], include_spectrum: bool,
-                ozone_resolver=None) -> Callable[[Mapping[str, np.ndarray]], dict]:
-    """The engine on a dict of input columns, returning result columns (what the cache stores)."""
-    from models import engine
+def engine_call(spectra: list[str], include_spectrum: bool, ozone_resolver=None,
+                max_full_solve_records: int | None = None) -> Callable[[Mapping[str, np.ndarray]], dict]:
+    """The engine on a dict of input columns, returning result columns (what the cache stores).
+
+    ``max_full_solve_records`` bounds, over every call of the returned function, the records
+    that may take the full solve (``None``: no bound, as for offline batch files)."""
+    from models import clear_sky, engine
+
+    budget = None if max_full_solve_records is None else clear_sky.FullSolveBudget(max_full_solve_records)
 
     def compute(columns: Mapping[str, np.ndarray]) -> dict[str, np.ndarray]:
         conditions = engine.Conditions.from_columns(columns)
         return engine.compute(conditions, spectra=spectra, include_spectrum=include_spectrum,
-                              ozone_resolver=ozone_resolver).as_columns()
+                              ozone_resolver=ozone_resolver, full_solve_budget=budget).as_columns()
 
     return compute
 
@@ -204,14 +209,16 @@ def with_cloud_factor_from_measurement(columns: Mapping[str, np.ndarray], ids: n
 
 def run(columns: Mapping[str, np.ndarray], ids: np.ndarray, spectra: list[str], include_spectrum: bool,
         through: Callable | None = None,
-        ozone_resolver=None) -> tuple[dict[str, Any], np.ndarray | None, np.ndarray | None]:
+        ozone_resolver=None,
+        max_full_solve_records: int | None = None) -> tuple[dict[str, Any], np.ndarray | None, np.ndarray | None]:
     """Compute validated columns; returns (flat output columns, wavelength_nm, spectrum).
 
     ``ozone_resolver`` is the app's (``app.extensions["uvdose_ozone"]``), ``None`` for the
     engine's default; its fingerprint goes into the cache context, since a changed grid
     file changes results without a new ``MODEL_VERSION``.
     """
-    compute = engine_call(spectra, include_spectrum, ozone_resolver)
+    columns = with_cloud_factor_from_measurement(columns, ids)
+    compute = engine_call(spectra, include_spectrum, ozone_resolver, max_full_solve_records)
     context = (f"irradiance;spectra={','.join(spectra)};spectrum={int(include_spectrum)};"
                f"ozone={getattr(ozone_resolver, 'fingerprint', 'default')}")
     result = through(columns, compute, context) if through else compute(columns)
@@ -228,9 +235,10 @@ def irradiance() -> Response:
                                max_records=current_app.config["UVDOSE_MAX_RECORDS"])
     batch, options = batch_request.batch, batch_request.options
     spectra = options.get("spectra") or default_spectra()
-    columns, wavelength_nm, spectrum = run(with_cloud_factor_from_measurement(batch.columns, batch.ids), batch.ids, spectra, options["include_spectrum"],
+    columns, wavelength_nm, spectrum = run(batch.columns, batch.ids, spectra, options["include_spectrum"],
                                            through=compute_through_cache,
-                                           ozone_resolver=current_app.extensions.get("uvdose_ozone"))
+                                           ozone_resolver=current_app.extensions.get("uvdose_ozone"),
+                                           max_full_solve_records=current_app.config["UVDOSE_MAX_FULL_SOLVE_RECORDS"])
     metrics.count_records(ROUTE, len(batch))
     if media_type == CSV_MEDIA_TYPE:
         return csv_response(csv_columns(columns, wavelength_nm, spectrum))

@@ -106,3 +106,18 @@ def test_empty_batch_gives_empty_spectra():
                                            empty, empty)
     assert result.direct_horizontal_w_m2_nm.shape == (0, WAVELENGTH_NM.size)
     assert result.diffuse_horizontal_w_m2_nm.shape == (0, WAVELENGTH_NM.size)
+
+
+def test_full_solve_budget_counts_only_records_outside_the_table():
+    from models.clear_sky import FullSolveBudget, FullSolveLimitExceeded
+
+    zenith = np.array([30.0, 30.0, 30.0, 120.0])
+    default_type = (optics.DEFAULT_AOD_550, optics.DEFAULT_ANGSTROM_EXPONENT,
+                    optics.DEFAULT_SINGLE_SCATTERING_ALBEDO, optics.DEFAULT_ASYMMETRY_FACTOR)
+    budget = FullSolveBudget(1)
+    clear_sky.spectral_irradiance(zenith, 1.0, 300.0, 1013.25, 0.05, *default_type, full_solve_budget=budget)
+    assert budget.used == 0
+    with pytest.raises(FullSolveLimitExceeded, match="3 records"):
+        # Three daytime records with a client Ångström exponent; the night record is free.
+        clear_sky.spectral_irradiance(zenith, 1.0, 300.0, 1013.25, 0.05, optics.DEFAULT_AOD_550, 0.9,
+                                      *default_type[2:], full_solve_budget=budget)

@@ -199,3 +199,13 @@ def test_route_typos_are_errors_not_ignored(client):
     points = [dict(DELIVERY[0], latitude=1.0)] + DELIVERY[1:]
     r = _post(client, "/v1/doses/routes", {"routes": [{"id": "v", "points": points}]})
     assert r.status_code == 422 and r.get_json()["errors"][0]["field"] == "routes[0].points.latitude"
+
+
+def test_dose_samples_beyond_the_full_solve_bound_are_a_413_problem(make_app, contract_client_for):
+    # 4 h at 30-min steps is 9 samples; a client aerosol type sends each to the full solve.
+    client = contract_client_for(make_app(UVDOSE_CACHE="off", UVDOSE_MAX_FULL_SOLVE_RECORDS=5))
+    hazy = dict(WINDOW, angstrom_exponent=0.9)
+    r = _post(client, "/v1/doses/windows", {"records": [hazy], "step_s": 1800})
+    assert r.status_code == 413
+    assert r.get_json()["type"] == "urn:uvdose:problem:too-many-full-solve-records"
+    assert _post(client, "/v1/doses/windows", {"records": [WINDOW], "step_s": 1800}).status_code == 200

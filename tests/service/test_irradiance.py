@@ -419,3 +419,20 @@ def test_a_measurement_with_the_sun_too_low_leaves_the_sky_clear(exact):
     response = post(exact, {"records": [{**low_sun, "measured_ghi_w_m2": 20.0}]})
     assert response.status_code == 200
     assert response.get_json()["results"][0]["cloud_factor"] == 1.0
+
+
+# --- the bound on full-solve records -----------------------------------------------------
+
+def test_records_beyond_the_full_solve_bound_are_a_413_problem_not_a_timeout(make_app, contract_client_for):
+    # A client aerosol type lies outside the precomputed table, so each such daytime record
+    # takes the full solve (~100 records/s per core); the bound keeps a request within time.
+    client = contract_client_for(make_app(UVDOSE_CACHE="off", UVDOSE_MAX_FULL_SOLVE_RECORDS=2))
+    hazy = {**ORCHARD, "angstrom_exponent": 0.9, "single_scattering_albedo": 0.88}
+    assert post(client, {"records": [hazy, hazy]}).status_code == 200
+    response = post(client, {"records": [hazy, hazy, hazy, ORCHARD]})
+    assert response.status_code == 413
+    body = response.get_json()
+    assert body["type"] == "urn:uvdose:problem:too-many-full-solve-records"
+    assert body["max_full_solve_records"] == 2 and "3 records" in body["detail"]
+    # Records the table covers do not count against the bound.
+    assert post(client, {"records": [ORCHARD] * 5 + [hazy]}).status_code == 200
