@@ -7,6 +7,7 @@ does not have (404, 405) must still be RFC 9457 problem documents.
 """
 from __future__ import annotations
 
+import contextlib
 import copy
 import json
 import os
@@ -167,13 +168,15 @@ def stop(process: subprocess.Popen) -> None:
             process.wait()
 
 
-@pytest.fixture(scope="session")
-def gunicorn_server(tmp_path_factory):
-    """Base URL of a real gunicorn (2 workers, multiprocess metrics) on a free loopback port."""
+@contextlib.contextmanager
+def running_gunicorn(tmp_path_factory, **settings: str):
+    """A real gunicorn (2 workers, multiprocess metrics) on a free loopback port, with
+    ``settings`` added to its environment; yields its base URL, stops it afterwards."""
     port = free_loopback_port()
     metrics_dir = tmp_path_factory.mktemp("prometheus")
-    env = {**os.environ, "PROMETHEUS_MULTIPROC_DIR": str(metrics_dir)}
-    env.pop("REDIS_URL", None)
+    env = {**os.environ, "PROMETHEUS_MULTIPROC_DIR": str(metrics_dir), **settings}
+    if "REDIS_URL" not in settings:
+        env.pop("REDIS_URL", None)
     log = (tmp_path_factory.mktemp("gunicorn") / "stderr.log").open("wb")
     process = subprocess.Popen(
         [sys.executable, "-m", "gunicorn", "--workers", "2", "--bind", f"127.0.0.1:{port}",
@@ -187,3 +190,10 @@ def gunicorn_server(tmp_path_factory):
     finally:
         stop(process)
         log.close()
+
+
+@pytest.fixture(scope="session")
+def gunicorn_server(tmp_path_factory):
+    """Base URL of a real gunicorn on its defaults (see :func:`running_gunicorn`)."""
+    with running_gunicorn(tmp_path_factory) as base_url:
+        yield base_url

@@ -103,9 +103,34 @@ def generated_schema():
 
 generated = schemathesis.pytest.from_fixture("generated_schema")
 
+CHECKS = [not_a_server_error, status_code_conformance, content_type_conformance,
+          response_schema_conformance]
+
 
 @generated.parametrize()
 @settings(max_examples=20, deadline=None, suppress_health_check=list(HealthCheck))
 def test_generated_requests_get_documented_answers_and_never_a_5xx(case):
-    case.call_and_validate(checks=[not_a_server_error, status_code_conformance,
-                                   content_type_conformance, response_schema_conformance])
+    case.call_and_validate(checks=CHECKS)
+
+
+@pytest.fixture(scope="module")
+def live_schema(tmp_path_factory):
+    """The same contract, fetched from and exercised against a real gunicorn on loopback."""
+    from tests.service.conftest import running_gunicorn
+
+    with running_gunicorn(tmp_path_factory, UVDOSE_MAX_RECORDS="20", UVDOSE_CACHE="off") as base_url:
+        config = SchemathesisConfig.from_dict({"base-url": base_url, "seed": 20261202,
+                                               "phases": {"coverage": {"enabled": False}}})
+        yield schemathesis.openapi.from_url(base_url + "/openapi.yaml", config=config)
+
+
+live = schemathesis.pytest.from_fixture("live_schema")
+
+
+@live.parametrize()
+@settings(max_examples=8, deadline=None, suppress_health_check=list(HealthCheck))
+def test_generated_requests_to_the_live_server_never_get_a_5xx(case):
+    # Only the 5xx check here: in front of the app, gunicorn answers protocol-level limits
+    # itself (414 for a request line over its 4094 bytes, in HTML), which the app's
+    # contract does not describe. Full conformance is checked in-process above.
+    case.call_and_validate(checks=[not_a_server_error])
