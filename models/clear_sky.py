@@ -129,7 +129,7 @@ class FullSolveBudget:
     The full solve runs at about 100 records/s per core (``tests/benchmarks/bench_engine.py``)
     against tens of thousands for the precomputed table, so a large batch of records outside
     the table (a client aerosol type, pressure below 500 hPa, AOD above 2, ozone below
-    100 DU, the sun within half a degree of the horizon) could outlast any request timeout.
+    100 DU) could outlast any request timeout.
     :meth:`spend` raises :class:`FullSolveLimitExceeded` before such work starts.
     """
 

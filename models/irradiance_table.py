@@ -37,7 +37,7 @@ the UV Index, every action spectrum of ``models.action_spectra`` and the UVB/UVA
 over the whole range (``tests/models/test_irradiance_table.py``).
 
 Range (outside it, or with a non-default aerosol type, ``models.clear_sky`` uses the
-full solve): zenith 0–89.5°, ozone 100–700 DU, pressure 500–1060 hPa, AOD(550) 0–2.
+full solve): zenith 0–90°, ozone 100–700 DU, pressure 500–1060 hPa, AOD(550) 0–2.
 
 The table file ``models/data/irradiance_table.npz`` is written by
 ``models/data/build_irradiance_table.py`` and carries a fingerprint (``MODEL_VERSION``
@@ -67,7 +67,7 @@ ZENITH_NODES_DEG = np.array([
     59.0, 61.75, 64.25, 66.25, 68.25,
     70.25, 71.75, 73.25, 74.75, 76.0, 77.25, 78.25, 79.25, 80.25, 81.0, 81.75, 82.5, 83.25,
     83.75, 84.5, 85.0, 85.5, 86.0, 86.25, 86.75, 87.0, 87.5, 87.75, 88.25, 88.5, 88.75, 89.0,
-    89.25, 89.5,
+    89.25, 89.5, 89.75, 90.0,
 ])
 """Solar zenith nodes, degrees: about evenly spaced in ln(air mass), rounded, with extra
 nodes at 22-56 degrees, where below 290 nm the global flux turns from beam to skylight."""
