@@ -300,13 +300,7 @@ def _check_number(rule: ColumnRule, values: list, n: int) -> tuple[np.ndarray, n
         column = np.array([_finite_or_inf(v) for v in values], dtype=np.float64)
     missing = _none_mask(values) & ~bad
     given = ~missing & ~bad
-    with np.errstate(invalid="ignore"):
-        in_range = np.isfinite(column)
-        if rule.minimum is not None:
-            in_range &= column >= rule.minimum
-        if rule.maximum is not None:
-            in_range &= (column <= rule.maximum) if rule.max_inclusive else (column < rule.maximum)
-    bad |= given & ~in_range
+    bad |= given & ~_in_range(rule, column)
     if rule.required:
         bad |= missing
     column[bad] = np.nan
@@ -377,6 +371,17 @@ def unix_seconds_of_canonical_times(values: Sequence[Any]) -> tuple[np.ndarray, 
     return np.where(ok, seconds.astype(np.float64), np.nan), ok
 
 
+def _in_range(rule: ColumnRule, column: np.ndarray) -> np.ndarray:
+    """Finite and within the rule's declared bounds (NaN is out of range)."""
+    with np.errstate(invalid="ignore"):
+        inside = np.isfinite(column)
+        if rule.minimum is not None:
+            inside &= column >= rule.minimum
+        if rule.maximum is not None:
+            inside &= (column <= rule.maximum) if rule.max_inclusive else (column < rule.maximum)
+    return inside
+
+
 def _check_time(rule: ColumnRule, values: list, n: int) -> tuple[np.ndarray, np.ndarray]:
     column, read = unix_seconds_of_canonical_times(values)
     bad = np.zeros(n, dtype=bool)
@@ -385,13 +390,7 @@ def _check_time(rule: ColumnRule, values: list, n: int) -> tuple[np.ndarray, np.
             column[index] = parse_offset_datetime(values[index])
         except (TypeError, ValueError):
             bad[index] = True
-    with np.errstate(invalid="ignore"):
-        in_range = np.isfinite(column)
-        if rule.minimum is not None:
-            in_range &= column >= rule.minimum
-        if rule.maximum is not None:
-            in_range &= (column <= rule.maximum) if rule.max_inclusive else (column < rule.maximum)
-    return column, bad | ~in_range
+    return column, bad | ~_in_range(rule, column)
 
 
 def _check_text(rule: ColumnRule, values: list, n: int) -> tuple[np.ndarray, np.ndarray]:
