@@ -41,6 +41,7 @@ REPO = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(REPO))
 
 from service.cache import GridCellCache, _distinct_rows, _split_rows  # noqa: E402
+from timing import best_of  # noqa: E402  (this folder; see timing.py)
 
 REDIS_URL = os.environ.get("REDIS_URL", "redis://127.0.0.1:6379/15")
 CONTEXT = "bench:spectra=erythema,actinic_icnirp,plant_damage"
@@ -61,15 +62,6 @@ def scenario(records: int, cells: int, seed: int = 2026) -> dict[str, np.ndarray
         "latitude_deg": cell_lat[pick] + rng.uniform(0.002, 0.048, records),
         "longitude_deg": cell_lon[pick] + rng.uniform(0.002, 0.048, records),
     }
-
-
-def best_of(repeats: int, call) -> float:
-    times = []
-    for _ in range(repeats):
-        started = time.perf_counter()
-        call()
-        times.append(time.perf_counter() - started)
-    return min(times)
 
 
 def bench_keys(columns: dict[str, np.ndarray], repeats: int) -> None:

@@ -19,7 +19,6 @@ from __future__ import annotations
 import argparse
 import statistics
 import sys
-import time
 from pathlib import Path
 
 import numpy as np
@@ -30,6 +29,7 @@ from models import clear_sky, optics  # noqa: E402
 from models.atmosphere import (DOBSON_UNIT_CM2, exponential_layer_fraction,  # noqa: E402
                                pressure_scale, standard_layers)
 from models.spectral_grid import WAVELENGTH_NM  # noqa: E402
+from timing import timings  # noqa: E402  (this folder; see timing.py)
 
 
 def scenario(records: int, seed: int = 7) -> dict[str, np.ndarray]:
@@ -69,12 +69,8 @@ def layer_optics_plain(ozone_du, pressure_hpa, aod_550, alpha, ssa_a, g_a):
     return tau, scattering / tau, ssa_a[:, None, None] * tau_a * g_a[:, None, None] / scattering
 
 
-def best_of(repeats, function):
-    times = []
-    for _ in range(repeats):
-        start = time.perf_counter()
-        function()
-        times.append(time.perf_counter() - start)
+def best_and_median(repeats, function):
+    times = timings(repeats, function)
     return min(times), statistics.median(times)
 
 
@@ -93,10 +89,10 @@ def main() -> None:
         np.testing.assert_allclose(ours, theirs, rtol=1e-12)
     del fast, plain
 
-    vector_s, _ = best_of(repeats, lambda: optics.layer_optics(*optics_arguments(case)))
-    plain_s, _ = best_of(repeats, lambda: layer_optics_plain(*optics_arguments(case)))
+    vector_s, _ = best_and_median(repeats, lambda: optics.layer_optics(*optics_arguments(case)))
+    plain_s, _ = best_and_median(repeats, lambda: layer_optics_plain(*optics_arguments(case)))
     loop_n = min(n, 200)
-    loop_s, _ = best_of(repeats, lambda: [optics.layer_optics(*optics_arguments(case, slice(i, i + 1)))
+    loop_s, _ = best_and_median(repeats, lambda: [optics.layer_optics(*optics_arguments(case, slice(i, i + 1)))
                                           for i in range(loop_n)])
     loop_per_record = loop_s / loop_n
     print(f"layer_optics, {n} records x {standard_layers().count} layers x {WAVELENGTH_NM.size} wavelengths")
@@ -105,9 +101,9 @@ def main() -> None:
     print(f"  per-record loop     : {loop_per_record * 1e6:8.1f} us/record -> vectorised speed-up "
           f"{loop_per_record * n / vector_s:5.1f}x")
 
-    solve_s, solve_median = best_of(repeats, lambda: clear_sky.spectral_irradiance_direct_solve(
+    solve_s, solve_median = best_and_median(repeats, lambda: clear_sky.spectral_irradiance_direct_solve(
         *case.values()))
-    single_s, _ = best_of(1, lambda: [clear_sky.spectral_irradiance_direct_solve(
+    single_s, _ = best_and_median(1, lambda: [clear_sky.spectral_irradiance_direct_solve(
         *[v[i:i + 1] for v in case.values()]) for i in range(loop_n)])
     print(f"spectral_irradiance_direct_solve, {n} records (chunks of {clear_sky.CHUNK_RECORDS})")
     print(f"  vectorised          : {solve_s * 1e3:8.1f} ms best, {solve_median * 1e3:.1f} ms median"

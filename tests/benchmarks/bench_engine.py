@@ -30,7 +30,6 @@ for _variable in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
 import argparse  # noqa: E402
 import resource  # noqa: E402
 import sys  # noqa: E402
-import time  # noqa: E402
 import tracemalloc  # noqa: E402
 from pathlib import Path  # noqa: E402
 
@@ -43,6 +42,7 @@ from models.ozone_climatology import climatological_ozone_du  # noqa: E402
 from models.ozone_grids import OzoneResolver  # noqa: E402
 from models.solar_geometry import pressure_from_elevation_hpa, solar_position  # noqa: E402
 from models.uv_index import madronich_uv_index  # noqa: E402
+from timing import best_of  # noqa: E402  (this folder; see timing.py)
 
 YEAR_2026_UNIX_S = 1767225600.0
 
@@ -67,15 +67,6 @@ def daytime_records(n: int, seed: int = 11) -> dict[str, np.ndarray]:
         chosen.append({key: value[keep] for key, value in batch.items()})
         found += int(keep.sum())
     return {key: np.concatenate([part[key] for part in chosen])[:n] for key in chosen[0]}
-
-
-def best_of(repeats: int, fn) -> float:
-    best = np.inf
-    for _ in range(repeats):
-        start = time.perf_counter()
-        fn()
-        best = min(best, time.perf_counter() - start)
-    return best
 
 
 def madronich_path(columns):

@@ -35,6 +35,7 @@ from datetime import datetime, timedelta, timezone
 from pathlib import Path
 
 import numpy as np
+from timing import timings  # noqa: E402  (this folder; see timing.py)
 
 REPO = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(REPO))
@@ -57,12 +58,7 @@ def as_columns(records: list[dict]) -> dict:
 
 
 def timed(call, repeats: int) -> list[float]:
-    times = []
-    for _ in range(repeats):
-        started = time.perf_counter()
-        call()
-        times.append(time.perf_counter() - started)
-    return times
+    return timings(repeats, call)
 
 
 def p95(times: list[float]) -> float:

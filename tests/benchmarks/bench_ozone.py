@@ -11,7 +11,6 @@ Run:  python tests/benchmarks/bench_ozone.py
 from __future__ import annotations
 
 import sys
-import time
 from pathlib import Path
 
 import numpy as np
@@ -24,20 +23,15 @@ from models.ozone_climatology import (  # noqa: E402
     van_heuklon_ozone_du,
 )
 from models.ozone_grids import OzoneResolver  # noqa: E402
+from timing import best_of  # noqa: E402  (this folder; see timing.py)
 
 N = 100_000
 ENGINE_RECORDS = 2_000
 REPEATS = 7
 
 
-def best_of(fn, repeats=REPEATS) -> float:
-    fn()
-    times = []
-    for _ in range(repeats):
-        start = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - start)
-    return min(times)
+def _best_of(fn, repeats=REPEATS) -> float:
+    return best_of(repeats, fn, warmup=True)
 
 
 def main() -> None:
@@ -48,9 +42,9 @@ def main() -> None:
     day = day_of_year_from_unix(t)
     resolver = OzoneResolver()
 
-    baseline = best_of(lambda: van_heuklon_ozone_du(lat, lon, day))
-    table = best_of(lambda: climatological_ozone_du(lat, lon, day))
-    resolve = best_of(lambda: resolver.resolve(lat, lon, t, None))
+    baseline = _best_of(lambda: van_heuklon_ozone_du(lat, lon, day))
+    table = _best_of(lambda: climatological_ozone_du(lat, lon, day))
+    resolve = _best_of(lambda: resolver.resolve(lat, lon, t, None))
 
     from models import engine
 
@@ -58,7 +52,7 @@ def main() -> None:
     conditions = engine.Conditions.from_columns(
         {"time_unix_s": t[subset], "latitude_deg": lat[subset], "longitude_deg": lon[subset]}
     )
-    engine_s = best_of(lambda: engine.compute(conditions), repeats=2) * (N / ENGINE_RECORDS)
+    engine_s = _best_of(lambda: engine.compute(conditions), repeats=2) * (N / ENGINE_RECORDS)
 
     print(f"records: {N}")
     print(f"baseline  analytic Van Heuklon expression : {baseline * 1e3:8.2f} ms")

@@ -5,7 +5,6 @@ in, DataFrame out), the public pvlib entry point for the same algorithm. Prints
 absolute times and the ratio. Run: python tests/benchmarks/bench_solar_geometry.py
 """
 
-import time
 
 import numpy as np
 import pandas as pd
@@ -13,18 +12,14 @@ import pvlib
 import pvlib.spa
 
 from models.solar_geometry import pressure_from_elevation_hpa, solar_position
+from timing import best_of  # noqa: E402  (this folder; see timing.py)
 
 N_RECORDS = 10_000
 REPEATS = 5
 
 
 def _best_of(fn) -> float:
-    best = np.inf
-    for _ in range(REPEATS):
-        start = time.perf_counter()
-        fn()
-        best = min(best, time.perf_counter() - start)
-    return best
+    return best_of(REPEATS, fn)
 
 
 def main() -> None:
