@@ -1,4 +1,4 @@
-"""gunicorn settings for uvdose: ``gunicorn -c deploy/gunicorn.conf.py 'service.app:create_app()'``.
+"""gunicorn settings for uvdose: ``gunicorn -c deploy/gunicorn.conf.py 'uvdose.service.app:create_app()'``.
 
 Worker and thread model
 -----------------------
@@ -100,9 +100,9 @@ if loglevel not in {"debug", "info", "warning", "error", "critical"}:
 logconfig_dict = {
     "version": 1,
     "disable_existing_loggers": False,
-    "formatters": {"json": {"()": "service.request_log.JsonLogFormatter"}},
+    "formatters": {"json": {"()": "uvdose.service.request_log.JsonLogFormatter"}},
     # gunicorn names client addresses and request URIs in some messages: redact them.
-    "filters": {"redact": {"()": "service.request_log.ServerLogRedaction"}},
+    "filters": {"redact": {"()": "uvdose.service.request_log.ServerLogRedaction"}},
     "handlers": {
         "stderr": {"class": "logging.StreamHandler", "formatter": "json", "stream": "ext://sys.stderr",
                    "filters": ["redact"]},

@@ -28,7 +28,7 @@ from typing import Callable, Sequence
 
 import numpy as np
 
-from models.spectral_grid import UVA_BAND_NM, UVB_BAND_NM
+from uvdose.models.spectral_grid import UVA_BAND_NM, UVB_BAND_NM
 
 __all__ = [
     "ActionSpectrum",

@@ -30,8 +30,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from models import atmosphere, optics
-from models.spectral_grid import WAVELENGTH_NM, extraterrestrial_spectrum_w_m2_nm
+from uvdose.models import atmosphere, optics
+from uvdose.models.spectral_grid import WAVELENGTH_NM, extraterrestrial_spectrum_w_m2_nm
 
 METHODS = ("auto", "direct", "table")
 """Accepted values of ``method`` in :func:`spectral_irradiance`."""
@@ -85,7 +85,7 @@ def spectral_irradiance_direct_solve(solar_zenith_deg, earth_sun_distance_au, oz
     See the module docstring for the method and units. Every argument is (N,) or a scalar;
     ``surface_albedo`` may also be (N, W).
     """
-    from models.four_stream import surface_irradiance
+    from uvdose.models.four_stream import surface_irradiance
 
     zenith, distance, ozone, pressure, aod, alpha, ssa, g = _as_record_arrays(
         solar_zenith_deg, earth_sun_distance_au, ozone_du, pressure_hpa, aod_550,
@@ -162,7 +162,7 @@ def spectral_irradiance(solar_zenith_deg, earth_sun_distance_au, ozone_du, press
     if method == "direct":
         return spectral_irradiance_direct_solve(*arguments)
     if method in ("auto", "table"):
-        from models import irradiance_table
+        from uvdose.models import irradiance_table
 
         fallback = None
         if method == "auto":

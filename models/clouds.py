@@ -30,7 +30,7 @@ from __future__ import annotations
 import numpy as np
 from pvlib import clearsky
 
-from models.solar_geometry import solar_position, surface_pressure_hpa
+from uvdose.models.solar_geometry import solar_position, surface_pressure_hpa
 
 CMF_RANGE = (0.0, 1.5)
 """Accepted cloud modification factors. Above 1: broken-cloud enhancement, observed

@@ -63,7 +63,7 @@ def engine_evaluator(spectra: Sequence[str], transmittance=None, method: str = "
                      ozone_resolver=None, full_solve_budget=None) -> Evaluator:
     """Evaluator that runs ``models.engine.compute`` on sample columns (one
     ``full_solve_budget``, if given, shared by every call)."""
-    from models import engine
+    from uvdose.models import engine
 
     def evaluate(columns: Columns) -> Columns:
         result = engine.compute(engine.Conditions.from_columns(columns), spectra=tuple(spectra),
@@ -309,7 +309,7 @@ class FieldSeason:
 
 
 def _climatological_ozone(latitude_deg, longitude_deg, time_unix_s):
-    from models.ozone_climatology import climatological_ozone_du, day_of_year_from_unix
+    from uvdose.models.ozone_climatology import climatological_ozone_du, day_of_year_from_unix
 
     return climatological_ozone_du(latitude_deg, longitude_deg, day_of_year_from_unix(time_unix_s))
 

@@ -17,10 +17,10 @@ from typing import Mapping, Sequence
 
 import numpy as np
 
-from models import MODEL_VERSION, action_spectra, clear_sky, optics, receivers, surfaces, uv_index
-from models.ozone_grids import OzoneResolver, default_resolver
-from models.solar_geometry import solar_position, surface_pressure_hpa
-from models.spectral_grid import WAVELENGTH_NM
+from uvdose.models import MODEL_VERSION, action_spectra, clear_sky, optics, receivers, surfaces, uv_index
+from uvdose.models.ozone_grids import OzoneResolver, default_resolver
+from uvdose.models.solar_geometry import solar_position, surface_pressure_hpa
+from uvdose.models.spectral_grid import WAVELENGTH_NM
 
 DEFAULT_SPECTRA: tuple[str, ...] = ("erythema", "actinic_icnirp", "plant_damage")
 """Spectra weighted when a request names none."""

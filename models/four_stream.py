@@ -57,7 +57,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from models.two_stream import (EIGENVALUE_GUARD, MAX_SCALED_SINGLE_SCATTERING_ALBEDO,
+from uvdose.models.two_stream import (EIGENVALUE_GUARD, MAX_SCALED_SINGLE_SCATTERING_ALBEDO,
                                TransferComponents, _beam_geometry, _check_inputs,
                                apply_surface_albedo)
 

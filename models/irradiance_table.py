@@ -54,11 +54,11 @@ from pathlib import Path
 import numpy as np
 import scipy.sparse
 
-from models import MODEL_VERSION, atmosphere, optics
-from models.spectral_grid import WAVELENGTH_NM, extraterrestrial_spectrum_w_m2_nm
-from models.clear_sky import rayleigh_scattering_fraction
-from models.four_stream import transfer_components
-from models.two_stream import apply_surface_albedo
+from uvdose.models import MODEL_VERSION, atmosphere, optics
+from uvdose.models.spectral_grid import WAVELENGTH_NM, extraterrestrial_spectrum_w_m2_nm
+from uvdose.models.clear_sky import rayleigh_scattering_fraction
+from uvdose.models.four_stream import transfer_components
+from uvdose.models.two_stream import apply_surface_albedo
 
 TABLE_FILE = Path(__file__).with_name("data") / "irradiance_table.npz"
 

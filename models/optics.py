@@ -44,10 +44,10 @@ from pathlib import Path
 
 import numpy as np
 
-from models.atmosphere import (DOBSON_UNIT_CM2, StandardLayers, exponential_layer_fraction,
+from uvdose.models.atmosphere import (DOBSON_UNIT_CM2, StandardLayers, exponential_layer_fraction,
                                pressure_scale, read_data_table,
                                standard_layers)
-from models.spectral_grid import WAVELENGTH_NM
+from uvdose.models.spectral_grid import WAVELENGTH_NM
 
 DEFAULT_AOD_550 = 0.1
 """Default aerosol optical depth at 550 nm (clean continental; common practice, no source)."""

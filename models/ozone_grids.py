@@ -46,7 +46,7 @@ from pathlib import Path
 
 import numpy as np
 
-from models.ozone_climatology import climatological_ozone_du, day_of_year_from_unix
+from uvdose.models.ozone_climatology import climatological_ozone_du, day_of_year_from_unix
 
 PLAUSIBLE_OZONE_DU = (50.0, 700.0)
 """Accepted range for any total-ozone column [DU], grid or client; the same range the

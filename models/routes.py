@@ -40,8 +40,8 @@ from typing import Mapping, Sequence
 
 import numpy as np
 
-from models import dose
-from models.solar_geometry import solar_position
+from uvdose.models import dose
+from uvdose.models.solar_geometry import solar_position
 
 DEFAULT_ROUTE_STEP_S = 300.0
 """Default integration step along routes (5 min)."""

@@ -6,8 +6,8 @@ from typing import Any
 
 from flask import Flask
 
-from service import auth, cache, metrics, problems, request_log
-from service.config import settings_from_environment
+from uvdose.service import auth, cache, metrics, problems, request_log
+from uvdose.service.config import settings_from_environment
 
 
 def create_app(config: dict[str, Any] | None = None) -> Flask:
@@ -28,15 +28,15 @@ def create_app(config: dict[str, Any] | None = None) -> Flask:
     _register_blueprints(app)
     # Load the engine's precomputed table now, not on the first request (and, with
     # gunicorn's preload, once before the workers fork).
-    import_module("service.routes_health").engine_check()
+    import_module("uvdose.service.routes_health").engine_check()
     return app
 
 
 def _register_blueprints(app: Flask) -> None:
     """One line per resource blueprint (imported here so each line stands alone)."""
-    app.register_blueprint(import_module("service.routes_health").blueprint)
-    app.register_blueprint(import_module("service.routes_docs").blueprint)
-    app.register_blueprint(import_module("service.routes_catalogue").blueprint)
-    app.register_blueprint(import_module("service.routes_irradiance").blueprint)
-    app.register_blueprint(import_module("service.routes_ozone").blueprint)
-    app.register_blueprint(import_module("service.routes_doses").blueprint)
+    app.register_blueprint(import_module("uvdose.service.routes_health").blueprint)
+    app.register_blueprint(import_module("uvdose.service.routes_docs").blueprint)
+    app.register_blueprint(import_module("uvdose.service.routes_catalogue").blueprint)
+    app.register_blueprint(import_module("uvdose.service.routes_irradiance").blueprint)
+    app.register_blueprint(import_module("uvdose.service.routes_ozone").blueprint)
+    app.register_blueprint(import_module("uvdose.service.routes_doses").blueprint)

@@ -36,7 +36,7 @@ from pathlib import Path
 
 from flask import Flask, g, request
 
-from service.problems import TYPE_PREFIX, problem_response
+from uvdose.service.problems import TYPE_PREFIX, problem_response
 
 OPEN_PATHS = frozenset({"/livez", "/readyz", "/metrics", "/openapi.yaml", "/docs"})
 API_KEY_HEADER = "X-API-Key"

@@ -27,7 +27,7 @@ import orjson
 from flask import Request, Response
 from marshmallow import Schema, ValidationError, fields, validate, validates_schema
 
-from service.problems import FieldError, Problem
+from uvdose.service.problems import FieldError, Problem
 
 JSON_MEDIA_TYPE = "application/json"
 CSV_MEDIA_TYPE = "text/csv"
@@ -143,7 +143,7 @@ class RecordSchema(Schema):
 
 
 def _surface_type_names() -> Iterable[str]:
-    from models.surfaces import SURFACE_TYPES
+    from uvdose.models.surfaces import SURFACE_TYPES
 
     return SURFACE_TYPES.keys()
 

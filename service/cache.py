@@ -39,8 +39,7 @@ from typing import Any, Callable, Mapping
 
 import numpy as np
 
-import models
-
+from uvdose import models
 log = logging.getLogger("uvdose.cache")
 
 Columns = dict[str, np.ndarray]
@@ -711,7 +710,7 @@ def _assemble(parts: list[tuple[np.ndarray, Columns]], cells: int, inverse: np.n
 
 
 def _count_event(event: str, amount: int) -> None:
-    from service import metrics
+    from uvdose.service import metrics
 
     counter = getattr(metrics, "count_cache", None)
     if counter is not None and amount:
@@ -719,7 +718,7 @@ def _count_event(event: str, amount: int) -> None:
 
 
 def _observe_latency(seconds: float) -> None:
-    from service import metrics
+    from uvdose.service import metrics
 
     observe = getattr(metrics, "observe_cache_latency", None)
     if observe is not None:

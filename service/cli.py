@@ -80,7 +80,7 @@ def serve(bind: str | None, workers: int | None, config_path: Path | None) -> No
                 self.cfg.set("workers", workers)
 
         def load(self):
-            from service.app import create_app
+            from uvdose.service.app import create_app
 
             return create_app()
 
@@ -115,8 +115,8 @@ def run_batch(
     import orjson
     from tqdm import tqdm
 
-    from service import batch_io, routes_irradiance as irr
-    from service.problems import Problem, response_for
+    from uvdose.service import batch_io, routes_irradiance as irr
+    from uvdose.service.problems import Problem, response_for
 
     options: dict[str, str] = {}
     if spectra:

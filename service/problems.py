@@ -15,7 +15,7 @@ from typing import Any
 from flask import Flask, Response
 from werkzeug.exceptions import HTTPException
 
-from models.clear_sky import FullSolveLimitExceeded
+from uvdose.models.clear_sky import FullSolveLimitExceeded
 
 PROBLEM_MEDIA_TYPE = "application/problem+json"
 TYPE_PREFIX = "urn:uvdose:problem:"

@@ -12,9 +12,9 @@ from typing import Any
 
 from flask import Blueprint, current_app
 
-from models import MODEL_VERSION
-from service.batch_io import column_rules, json_response
-from service.routes_irradiance import CAUTION, IrradianceRecordSchema, default_spectra
+from uvdose.models import MODEL_VERSION
+from uvdose.service.batch_io import column_rules, json_response
+from uvdose.service.routes_irradiance import CAUTION, IrradianceRecordSchema, default_spectra
 
 blueprint = Blueprint("catalogue", __name__)
 
@@ -42,7 +42,7 @@ def record_fields() -> list[dict[str, Any]]:
 
 
 def _surface_listing() -> list[dict[str, Any]]:
-    module = importlib.import_module("models.surfaces")
+    module = importlib.import_module("uvdose.models.surfaces")
     if hasattr(module, "catalogue"):
         return list(module.catalogue())
     return [{"name": s.name, "uv_albedo": float(s.uv_albedo), "source": s.source}
@@ -55,9 +55,9 @@ def catalogue():
         "model_version": MODEL_VERSION,
         "caution": CAUTION,
         "default_spectra": default_spectra(),
-        "action_spectra": _listing("models.action_spectra"),
+        "action_spectra": _listing("uvdose.models.action_spectra"),
         "surface_types": _surface_listing(),
-        "filters": _listing("models.filters"),
+        "filters": _listing("uvdose.models.filters"),
         "record_fields": record_fields(),
         "limits": {"max_records": current_app.config["UVDOSE_MAX_RECORDS"],
                    "max_body_bytes": current_app.config["MAX_CONTENT_LENGTH"]},

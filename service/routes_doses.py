@@ -23,10 +23,10 @@ import numpy as np
 from flask import Blueprint, Response, current_app, request
 from marshmallow import ValidationError, fields, validate, validates
 
-from models import MODEL_VERSION, clear_sky, clouds, dose, exposure, filters, routes
-from models.spectral_grid import WAVELENGTH_NM
-from service import metrics
-from service.batch_io import (
+from uvdose.models import MODEL_VERSION, clear_sky, clouds, dose, exposure, filters, routes
+from uvdose.models.spectral_grid import WAVELENGTH_NM
+from uvdose.service import metrics
+from uvdose.service.batch_io import (
     ConditionsRecordSchema,
     OffsetDateTime,
     OneOfRegistry,
@@ -40,8 +40,8 @@ from service.batch_io import (
     read_batch,
     rows_from_columns,
 )
-from service.problems import FieldError, Problem
-from service.routes_irradiance import StrictBoolean, compute_through_cache
+from uvdose.service.problems import FieldError, Problem
+from uvdose.service.routes_irradiance import StrictBoolean, compute_through_cache
 
 blueprint = Blueprint("doses", __name__)
 
@@ -66,7 +66,7 @@ CAUTION = exposure.CAUTION
 # -- shared option fields -------------------------------------------------------------
 
 def _spectrum_names():
-    from models.action_spectra import ACTION_SPECTRA
+    from uvdose.models.action_spectra import ACTION_SPECTRA
 
     return ACTION_SPECTRA.keys()
 

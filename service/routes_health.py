@@ -12,7 +12,7 @@ from typing import Any
 
 from flask import Blueprint, current_app, jsonify
 
-from models import MODEL_VERSION
+from uvdose.models import MODEL_VERSION
 
 blueprint = Blueprint("health", __name__)
 
@@ -30,7 +30,7 @@ def engine_check() -> dict[str, Any]:
     """
     started = time.perf_counter()
     try:
-        from models import engine, irradiance_table  # noqa: F401  (importable is part of ready)
+        from uvdose.models import engine, irradiance_table  # noqa: F401  (importable is part of ready)
 
         try:
             irradiance_table.load_table()  # memoised: loads once per process

@@ -12,10 +12,10 @@ import numpy as np
 from flask import Blueprint, Response, current_app, request
 from marshmallow import ValidationError, fields, validate, validates
 
-from models import MODEL_VERSION
-from models import clouds
-from service import metrics
-from service.batch_io import (
+from uvdose.models import MODEL_VERSION
+from uvdose.models import clouds
+from uvdose.service import metrics
+from uvdose.service.batch_io import (
     CSV_MEDIA_TYPE,
     ConditionsRecordSchema,
     OneOfRegistry,
@@ -29,7 +29,7 @@ from service.batch_io import (
     read_batch,
     rows_from_columns,
 )
-from service.problems import FieldError, Problem
+from uvdose.service.problems import FieldError, Problem
 
 CAUTION = (
     "Estimates for planning, computed from a model atmosphere: not a measurement, and not "
@@ -44,13 +44,13 @@ blueprint = Blueprint("irradiance", __name__)
 
 
 def _spectrum_names():
-    from models.action_spectra import ACTION_SPECTRA
+    from uvdose.models.action_spectra import ACTION_SPECTRA
 
     return ACTION_SPECTRA.keys()
 
 
 def default_spectra() -> list[str]:
-    from models.engine import DEFAULT_SPECTRA
+    from uvdose.models.engine import DEFAULT_SPECTRA
 
     return list(DEFAULT_SPECTRA)
 
@@ -109,7 +109,7 @@ def engine_call(spectra: list[str], include_spectrum: bool, ozone_resolver=None,
 
     ``max_full_solve_records`` bounds, over every call of the returned function, the records
     that may take the full solve (``None``: no bound, as for offline batch files)."""
-    from models import clear_sky, engine
+    from uvdose.models import clear_sky, engine
 
     budget = None if max_full_solve_records is None else clear_sky.FullSolveBudget(max_full_solve_records)
 
@@ -150,7 +150,7 @@ def as_lists(columns: Mapping[str, Any]) -> dict[str, list]:
 
 def spectrum_matrix(result: Mapping[str, np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
     """(wavelength_nm (W,), spectral irradiance (N, W)) from result columns."""
-    from models.engine import EngineResult
+    from uvdose.models.engine import EngineResult
 
     full = EngineResult.from_columns(result)
     return np.asarray(full.wavelength_nm, dtype=np.float64), full.spectrum_w_m2_nm

@@ -20,10 +20,10 @@ import numpy as np
 from flask import Blueprint, Flask, Response, current_app, g, request
 from marshmallow import ValidationError, validate, validates_schema
 
-from models import MODEL_VERSION
-from models.ozone_grids import GRIDS_ENV_VAR, OzoneResolver, default_resolver
-from service import metrics
-from service.batch_io import (
+from uvdose.models import MODEL_VERSION
+from uvdose.models.ozone_grids import GRIDS_ENV_VAR, OzoneResolver, default_resolver
+from uvdose.service import metrics
+from uvdose.service.batch_io import (
     CSV_MEDIA_TYPE,
     EARLIEST_TIME,
     TIME_BEFORE,
@@ -40,7 +40,7 @@ from service.batch_io import (
     read_batch,
     rows_from_columns,
 )
-from service.problems import Problem
+from uvdose.service.problems import Problem
 
 blueprint = Blueprint("ozone", __name__)
 

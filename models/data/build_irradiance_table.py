@@ -23,8 +23,8 @@ REPO_ROOT = Path(__file__).resolve().parents[2]
 if str(REPO_ROOT) not in sys.path:
     sys.path.insert(0, str(REPO_ROOT))
 
-from models import MODEL_VERSION  # noqa: E402
-from models import irradiance_table as table  # noqa: E402
+from uvdose.models import MODEL_VERSION  # noqa: E402
+from uvdose.models import irradiance_table as table  # noqa: E402
 
 PROVENANCE = {
     "title": "uvdose precomputed clear-sky surface UV (per unit extraterrestrial irradiance)",

@@ -20,7 +20,7 @@ REPO_ROOT = Path(__file__).resolve().parents[2]
 if str(REPO_ROOT) not in sys.path:
     sys.path.insert(0, str(REPO_ROOT))
 
-from models.ozone_climatology import (  # noqa: E402
+from uvdose.models.ozone_climatology import (  # noqa: E402
     DAYS_PER_CLIMATOLOGICAL_YEAR,
     TABLE_PATH,
     van_heuklon_ozone_du,

@@ -27,7 +27,7 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
-from models.spectral_grid import WAVELENGTH_NM, bin_average  # noqa: E402
+from uvdose.models.spectral_grid import WAVELENGTH_NM, bin_average  # noqa: E402
 
 OUTPUT = Path(__file__).with_name("ozone_cross_sections_dbm.csv")
 TEMPERATURES_K = (218.0, 228.0, 243.0, 273.0, 295.0)

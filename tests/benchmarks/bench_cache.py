@@ -40,7 +40,7 @@ import numpy as np
 REPO = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(REPO))
 
-from service.cache import GridCellCache, _distinct_rows, _split_rows  # noqa: E402
+from uvdose.service.cache import GridCellCache, _distinct_rows, _split_rows  # noqa: E402
 from timing import best_of  # noqa: E402  (this folder; see timing.py)
 
 REDIS_URL = os.environ.get("REDIS_URL", "redis://127.0.0.1:6379/15")
@@ -85,7 +85,7 @@ def bench_keys(columns: dict[str, np.ndarray], repeats: int) -> None:
 
 
 def bench_direct(columns: dict[str, np.ndarray], repeats: int) -> None:
-    from models import engine
+    from uvdose.models import engine
 
     def compute(cols):
         return engine.compute(engine.Conditions.from_columns(cols)).as_columns()
@@ -152,7 +152,7 @@ def bench_http(columns: dict[str, np.ndarray], repeats: int, aerosol: dict[str, 
         env.pop("PROMETHEUS_MULTIPROC_DIR", None)
         process = subprocess.Popen(
             [sys.executable, "-m", "gunicorn", "--workers", "1", "--bind", f"127.0.0.1:{port}",
-             "--timeout", "600", "service.app:create_app()"],
+             "--timeout", "600", "uvdose.service.app:create_app()"],
             cwd=REPO, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
         )
         base = f"http://127.0.0.1:{port}"

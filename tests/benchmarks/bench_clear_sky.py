@@ -25,10 +25,10 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
-from models import clear_sky, optics  # noqa: E402
-from models.atmosphere import (DOBSON_UNIT_CM2, exponential_layer_fraction,  # noqa: E402
+from uvdose.models import clear_sky, optics  # noqa: E402
+from uvdose.models.atmosphere import (DOBSON_UNIT_CM2, exponential_layer_fraction,  # noqa: E402
                                pressure_scale, standard_layers)
-from models.spectral_grid import WAVELENGTH_NM  # noqa: E402
+from uvdose.models.spectral_grid import WAVELENGTH_NM  # noqa: E402
 from timing import timings  # noqa: E402  (this folder; see timing.py)
 
 

@@ -19,8 +19,8 @@ import time
 
 import numpy as np
 
-from models import dose, filters, routes
-from models.spectral_grid import WAVELENGTH_NM
+from uvdose.models import dose, filters, routes
+from uvdose.models.spectral_grid import WAVELENGTH_NM
 
 DAY = 1781827200.0
 ROUTE_DAY_START = 1784098800.0  # 2026-07-15 07:00 UTC

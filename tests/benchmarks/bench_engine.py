@@ -37,11 +37,11 @@ import numpy as np  # noqa: E402
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
-from models import engine  # noqa: E402
-from models.ozone_climatology import climatological_ozone_du  # noqa: E402
-from models.ozone_grids import OzoneResolver  # noqa: E402
-from models.solar_geometry import pressure_from_elevation_hpa, solar_position  # noqa: E402
-from models.uv_index import madronich_uv_index  # noqa: E402
+from uvdose.models import engine  # noqa: E402
+from uvdose.models.ozone_climatology import climatological_ozone_du  # noqa: E402
+from uvdose.models.ozone_grids import OzoneResolver  # noqa: E402
+from uvdose.models.solar_geometry import pressure_from_elevation_hpa, solar_position  # noqa: E402
+from uvdose.models.uv_index import madronich_uv_index  # noqa: E402
 from timing import best_of  # noqa: E402  (this folder; see timing.py)
 
 YEAR_2026_UNIX_S = 1767225600.0

@@ -77,7 +77,7 @@ def start_server(port: int) -> subprocess.Popen:
            "PROMETHEUS_MULTIPROC_DIR": tempfile.mkdtemp(prefix="uvdose-bench-")}
     process = subprocess.Popen(
         [sys.executable, "-m", "gunicorn", "--workers", "1", "--bind", f"127.0.0.1:{port}", "--timeout", "300",
-         "service.app:create_app()"], cwd=REPO, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+         "uvdose.service.app:create_app()"], cwd=REPO, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
     deadline = time.monotonic() + 60
     while time.monotonic() < deadline:
         try:
@@ -103,9 +103,9 @@ def main() -> None:
 
     import orjson
 
-    from models import engine
-    from service import batch_io
-    from service.routes_irradiance import IrradianceOptionsSchema, IrradianceRecordSchema, default_spectra
+    from uvdose.models import engine
+    from uvdose.service import batch_io
+    from uvdose.service.routes_irradiance import IrradianceOptionsSchema, IrradianceRecordSchema, default_spectra
 
     schema, options = IrradianceRecordSchema(), IrradianceOptionsSchema()
     port = free_port()
@@ -147,7 +147,7 @@ def main() -> None:
     print(f"  parse JSON: orjson {parse_s:.4f} s, json {parse_json_s:.4f} s (json/orjson {parse_json_s / parse_s:.1f}x)")
     print(f"  validate: vectorised column checks (incl. parse) {vector_s:.4f} s, per-record marshmallow "
           f"{per_record_s:.4f} s (marshmallow/vectorised {per_record_s / vector_s:.1f}x)")
-    from service.routes_irradiance import envelope, result_rows, run
+    from uvdose.service.routes_irradiance import envelope, result_rows, run
 
     batch = batch_io.read_batch_bytes(body, "application/json", {}, record_schema=schema, options_schema=options,
                                       max_records=10**9).batch

@@ -17,12 +17,12 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
-from models.ozone_climatology import (  # noqa: E402
+from uvdose.models.ozone_climatology import (  # noqa: E402
     climatological_ozone_du,
     day_of_year_from_unix,
     van_heuklon_ozone_du,
 )
-from models.ozone_grids import OzoneResolver  # noqa: E402
+from uvdose.models.ozone_grids import OzoneResolver  # noqa: E402
 from timing import best_of  # noqa: E402  (this folder; see timing.py)
 
 N = 100_000
@@ -46,7 +46,7 @@ def main() -> None:
     table = _best_of(lambda: climatological_ozone_du(lat, lon, day))
     resolve = _best_of(lambda: resolver.resolve(lat, lon, t, None))
 
-    from models import engine
+    from uvdose.models import engine
 
     subset = slice(0, ENGINE_RECORDS)
     conditions = engine.Conditions.from_columns(

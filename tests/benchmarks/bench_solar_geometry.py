@@ -11,7 +11,7 @@ import pandas as pd
 import pvlib
 import pvlib.spa
 
-from models.solar_geometry import pressure_from_elevation_hpa, solar_position
+from uvdose.models.solar_geometry import pressure_from_elevation_hpa, solar_position
 from timing import best_of  # noqa: E402  (this folder; see timing.py)
 
 N_RECORDS = 10_000

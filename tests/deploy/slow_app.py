@@ -10,7 +10,7 @@ from pathlib import Path
 
 from flask import jsonify, request
 
-from service.app import create_app as create_service_app
+from uvdose.service.app import create_app as create_service_app
 
 HOLD_BODY_ITEMS = 5000
 

@@ -150,7 +150,7 @@ def _daytime_batch(size: int) -> bytes:
 def test_sigterm_during_a_real_batch_still_answers_it_in_full(tmp_path):
     size = 10_000  # the default most records per request; about 1 s of engine time
     body = _daytime_batch(size)
-    process, base_url, _, logs = _start(tmp_path, "service.app:create_app()", {"UVDOSE_CACHE": "off"})
+    process, base_url, _, logs = _start(tmp_path, "uvdose.service.app:create_app()", {"UVDOSE_CACHE": "off"})
     port = int(base_url.rsplit(":", 1)[1])
     try:
         connection = http.client.HTTPConnection("127.0.0.1", port, timeout=60)
@@ -181,7 +181,7 @@ def test_a_broken_key_file_stops_the_server_at_start(tmp_path):
     env.update({"UVDOSE_BIND": f"127.0.0.1:{port}", "UVDOSE_WORKERS": "1", "TMPDIR": str(tmp_path),
                 "UVDOSE_API_KEYS_FILE": str(tmp_path / "not-mounted"), "PYTHONPATH": str(ROOT)})
     result = subprocess.run(
-        [sys.executable, "-m", "gunicorn", "--config", str(CONFIG), "service.app:create_app()"],
+        [sys.executable, "-m", "gunicorn", "--config", str(CONFIG), "uvdose.service.app:create_app()"],
         cwd=tmp_path, env=env, capture_output=True, timeout=60,
     )
     assert result.returncode != 0

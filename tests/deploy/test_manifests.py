@@ -18,7 +18,7 @@ import gunicorn.config
 import pytest
 import yaml
 
-from service.app import create_app
+from uvdose.service.app import create_app
 from tests.deploy.dockerfile import dockerfile_instructions, env_of, exec_form, stages
 
 ROOT = Path(__file__).resolve().parents[2]

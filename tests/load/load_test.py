@@ -118,7 +118,7 @@ def start_gunicorn(port: int, redis_url: str, workdir: Path, workers: int, threa
     log = (workdir / "gunicorn.log").open("wb")
     process = subprocess.Popen(
         [sys.executable, "-m", "gunicorn", "--config", str(ROOT / "deploy" / "gunicorn.conf.py"),
-         "service.app:create_app()"],
+         "uvdose.service.app:create_app()"],
         cwd=workdir, env=env, stdout=log, stderr=subprocess.STDOUT,
     )
     base_url = f"http://127.0.0.1:{port}"

@@ -5,9 +5,9 @@ import json
 import numpy as np
 import pytest
 
-from models import action_spectra
-from models.action_spectra import ACTION_SPECTRA, catalogue, weight_matrix
-from models.spectral_grid import WAVELENGTH_NM
+from uvdose.models import action_spectra
+from uvdose.models.action_spectra import ACTION_SPECTRA, catalogue, weight_matrix
+from uvdose.models.spectral_grid import WAVELENGTH_NM
 
 EXPECTED_NAMES = {"erythema", "actinic_icnirp", "plant_damage", "plant_growth",
                   "dna_damage", "previtamin_d3", "uvb", "uva"}

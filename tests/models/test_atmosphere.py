@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 from pvlib.atmosphere import get_relative_airmass
 
-from models import atmosphere
+from uvdose.models import atmosphere
 
 
 @pytest.fixture(scope="module")

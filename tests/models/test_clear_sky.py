@@ -3,8 +3,8 @@
 import numpy as np
 import pytest
 
-from models import atmosphere, clear_sky, optics
-from models.spectral_grid import WAVELENGTH_NM, extraterrestrial_spectrum_w_m2_nm
+from uvdose.models import atmosphere, clear_sky, optics
+from uvdose.models.spectral_grid import WAVELENGTH_NM, extraterrestrial_spectrum_w_m2_nm
 
 CLEAN = dict(aod_550=0.1, angstrom_exponent=1.3, single_scattering_albedo=0.93,
              asymmetry_factor=0.7)
@@ -109,7 +109,7 @@ def test_empty_batch_gives_empty_spectra():
 
 
 def test_full_solve_budget_counts_only_records_outside_the_table():
-    from models.clear_sky import FullSolveBudget, FullSolveLimitExceeded
+    from uvdose.models.clear_sky import FullSolveBudget, FullSolveLimitExceeded
 
     zenith = np.array([30.0, 30.0, 30.0, 120.0])
     default_type = (optics.DEFAULT_AOD_550, optics.DEFAULT_ANGSTROM_EXPONENT,

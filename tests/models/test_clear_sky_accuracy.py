@@ -9,10 +9,10 @@ import pytest
 from pvlib.irradiance import get_total_irradiance
 from pvlib.spectrum import get_reference_spectra
 
-from models import clear_sky
-from models.action_spectra import weight_matrix
-from models.solar_geometry import pressure_from_elevation_hpa
-from models.spectral_grid import (UVA_WEIGHTS_NM, UVB_WEIGHTS_NM, WAVELENGTH_NM,
+from uvdose.models import clear_sky
+from uvdose.models.action_spectra import weight_matrix
+from uvdose.models.solar_geometry import pressure_from_elevation_hpa
+from uvdose.models.spectral_grid import (UVA_WEIGHTS_NM, UVB_WEIGHTS_NM, WAVELENGTH_NM,
                                   band_quadrature_weights, extraterrestrial_spectrum_w_m2_nm)
 
 ERYTHEMA_WEIGHTS = weight_matrix(["erythema"], WAVELENGTH_NM)[:, 0]
@@ -117,8 +117,8 @@ def test_g173_diffuse_uvb_agrees_with_disort_on_our_optics():
     # moment 0.1 and Henyey–Greenstein aerosol moments. Backs the known gap above: the
     # diffuse UVB is what the physics of this atmosphere gives. Measured: global within 0.4 %.
     pytest.importorskip("nanodisort")
-    from models import atmosphere, optics
-    from models.four_stream import surface_irradiance
+    from uvdose.models import atmosphere, optics
+    from uvdose.models.four_stream import surface_irradiance
     from tests.models.test_two_stream import disort_fluxes
 
     band = (WAVELENGTH_NM >= 300.0) & (WAVELENGTH_NM <= 320.0)

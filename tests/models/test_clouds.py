@@ -3,7 +3,7 @@ import numpy as np
 import pytest
 from pvlib import atmosphere, clearsky
 
-from models import clouds
+from uvdose.models import clouds
 
 
 def test_kasten_czeplak_overcast_and_clear():

@@ -7,8 +7,8 @@ import numpy as np
 import pytest
 from pvlib import spa
 
-from models import dose
-from models.solar_geometry import solar_position
+from uvdose.models import dose
+from uvdose.models.solar_geometry import solar_position
 
 EQUINOX_2026 = 1773964800.0  # 2026-03-20 00:00 UTC
 DAY = 86400.0

@@ -6,9 +6,9 @@ check that the facade wires the pipeline the way its docstrings say.
 import numpy as np
 import pytest
 
-from models import engine
-from models.solar_geometry import pressure_from_elevation_hpa
-from models.spectral_grid import WAVELENGTH_NM
+from uvdose.models import engine
+from uvdose.models.solar_geometry import pressure_from_elevation_hpa
+from uvdose.models.spectral_grid import WAVELENGTH_NM
 
 # 2024-03-20 12:00 UTC (near the March equinox); noon at Greenwich.
 EQUINOX_NOON_UTC = 1710936000.0

@@ -1,7 +1,7 @@
 """Exposure figures: SED, MED fractions, ICNIRP limit."""
 import numpy as np
 
-from models import exposure
+from uvdose.models import exposure
 
 
 def test_sed_definition():

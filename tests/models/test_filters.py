@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 from pvlib.spectrum import get_reference_spectra
 
-from models.filters import FILTERS, catalogue, resolve_transmittance, transmittance_from_curve
+from uvdose.models.filters import FILTERS, catalogue, resolve_transmittance, transmittance_from_curve
 
 WAVELENGTH_NM = np.arange(280.0, 401.0)
 

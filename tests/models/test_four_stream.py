@@ -17,8 +17,8 @@ atmosphere of tests/models/test_two_stream.py (its sources are stated there).
 import numpy as np
 import pytest
 
-from models import optics
-from models.four_stream import mixture_phase_moments, surface_irradiance, transfer_components
+from uvdose.models import optics
+from uvdose.models.four_stream import mixture_phase_moments, surface_irradiance, transfer_components
 
 nanodisort = pytest.importorskip("nanodisort")
 
@@ -48,8 +48,8 @@ def production_case(aod_550):
 
 
 def weighted_deviation(aod_550, albedo, zenith_deg):
-    from models import action_spectra
-    from models.spectral_grid import WAVELENGTH_NM, extraterrestrial_spectrum_w_m2_nm
+    from uvdose.models import action_spectra
+    from uvdose.models.spectral_grid import WAVELENGTH_NM, extraterrestrial_spectrum_w_m2_nm
 
     tau, ssa, g, moments, share = production_case(aod_550)
     mu0 = np.cos(np.radians(zenith_deg))
@@ -83,7 +83,7 @@ def test_weighted_global_irradiance_matches_16_stream_disort(aod_550, albedo, ze
 @pytest.mark.parametrize("aod_550, albedo", [(0.1, 0.05), (0.5, 0.8)])
 def test_spectral_global_irradiance_matches_16_stream_disort(zenith_deg, shortest_nm, tolerance,
                                                              aod_550, albedo):
-    from models.spectral_grid import WAVELENGTH_NM
+    from uvdose.models.spectral_grid import WAVELENGTH_NM
 
     tau, ssa, g, moments, share = production_case(aod_550)
     mu0 = np.cos(np.radians(zenith_deg))
@@ -161,7 +161,7 @@ def test_conservative_scattering_conserves_energy():
 def test_beam_rate_at_an_eigenvalue_is_smooth():
     # One isotropic layer, ssa 0.5: scan mu0 finely across 1/k for both eigenvalues k
     # of the four-stream equations, where the particular solution is singular.
-    from models.four_stream import _layer_matrices
+    from uvdose.models.four_stream import _layer_matrices
 
     mu_scan = np.linspace(0.05, 1.0, 20001)[:, None]
     n = mu_scan.shape[0]

@@ -11,10 +11,10 @@ import numpy as np
 import pytest
 from scipy.interpolate import RegularGridInterpolator
 
-from models import action_spectra, atmosphere, clear_sky, irradiance_table
-from models.irradiance_table import (AOD_NODES, DEFAULT_AEROSOL_TYPE, OZONE_NODES_DU,
+from uvdose.models import action_spectra, atmosphere, clear_sky, irradiance_table
+from uvdose.models.irradiance_table import (AOD_NODES, DEFAULT_AEROSOL_TYPE, OZONE_NODES_DU,
                                      PRESSURE_NODES_HPA, ZENITH_NODES_DEG)
-from models.spectral_grid import WAVELENGTH_NM
+from uvdose.models.spectral_grid import WAVELENGTH_NM
 
 SPECTRA = list(action_spectra.ACTION_SPECTRA)
 

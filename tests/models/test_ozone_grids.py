@@ -2,8 +2,8 @@
 import numpy as np
 import pytest
 
-from models.ozone_climatology import climatological_ozone_du, day_of_year_from_unix
-from models.ozone_grids import GRIDS_ENV_VAR, OzoneGrid, OzoneGridError, OzoneResolver
+from uvdose.models.ozone_climatology import climatological_ozone_du, day_of_year_from_unix
+from uvdose.models.ozone_grids import GRIDS_ENV_VAR, OzoneGrid, OzoneGridError, OzoneResolver
 
 # An invented regional grid for a demo scenario of our own (values are not data).
 LATS = np.array([40.0, 42.5, 45.0])

@@ -4,7 +4,7 @@ import pandas as pd
 import pytest
 from pvlib import irradiance
 
-from models.receivers import cos_incidence, receiver_spectral_irradiance
+from uvdose.models.receivers import cos_incidence, receiver_spectral_irradiance
 
 RNG = np.random.default_rng(20261201)
 

@@ -2,8 +2,8 @@
 import numpy as np
 import pytest
 
-from models import receivers, routes
-from models.solar_geometry import solar_position
+from uvdose.models import receivers, routes
+from uvdose.models.solar_geometry import solar_position
 
 T0 = 1781870400.0  # 2026-06-21 12:00 UTC
 

@@ -6,7 +6,7 @@ import datetime as dt
 import numpy as np
 import pytest
 
-from models.solar_geometry import (
+from uvdose.models.solar_geometry import (
     SolarPosition,
     pressure_from_elevation_hpa,
     solar_position,

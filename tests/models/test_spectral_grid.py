@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 from pvlib.spectrum import get_reference_spectra
 
-from models import spectral_grid as grid
+from uvdose.models import spectral_grid as grid
 
 
 @pytest.fixture(scope="module")

@@ -5,7 +5,7 @@ import json
 import numpy as np
 import pytest
 
-from models.surfaces import SURFACE_TYPES, albedo_for, catalogue
+from uvdose.models.surfaces import SURFACE_TYPES, albedo_for, catalogue
 
 EXPECTED = {"fresh_snow", "old_snow", "dry_sand", "wet_sand", "sea_surf_foam", "water",
             "grass", "bare_soil", "asphalt", "concrete", "crop_canopy"}

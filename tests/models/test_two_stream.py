@@ -20,8 +20,8 @@ quoted for delta-Eddington fluxes against discrete ordinates in this regime
 import numpy as np
 import pytest
 
-from models import four_stream, two_stream
-from models.two_stream import surface_irradiance, transfer_components
+from uvdose.models import four_stream, two_stream
+from uvdose.models.two_stream import surface_irradiance, transfer_components
 
 nanodisort = pytest.importorskip("nanodisort")
 
@@ -125,7 +125,7 @@ def test_global_spectral_irradiance_matches_disort(zenith_deg, albedo, shortest_
 
 
 def _weighted_deviation(zenith_deg, albedo, aod_550=0.2):
-    from models.spectral_grid import WAVELENGTH_NM, extraterrestrial_spectrum_w_m2_nm
+    from uvdose.models.spectral_grid import WAVELENGTH_NM, extraterrestrial_spectrum_w_m2_nm
 
     wavelength_nm = WAVELENGTH_NM.astype(float)
     tau, ssa, g, moments, _ = synthetic_atmosphere(wavelength_nm, aod_550=aod_550)
@@ -274,7 +274,7 @@ def test_bad_shapes_and_values_are_rejected(solver):
 def production_layers(aod_550):
     """The engine's own 27 layers (models.optics) and DISORT phase moments for them:
     Rayleigh (moment 2 = 0.1) plus Henyey-Greenstein aerosol, split by the layer g."""
-    from models import optics
+    from uvdose.models import optics
 
     g_aerosol = optics.DEFAULT_ASYMMETRY_FACTOR
     layer = optics.layer_optics(np.array([300.0]), 1013.25, aod_550,
@@ -294,8 +294,8 @@ def production_layers(aod_550):
 @pytest.mark.parametrize("zenith_deg, bound", [(0.0, 0.03), (30.0, 0.03), (50.0, 0.03),
                                                (65.0, 0.06), (75.0, 0.13), (80.0, 0.22)])
 def test_production_optics_against_disort(zenith_deg, bound):
-    from models import action_spectra
-    from models.spectral_grid import WAVELENGTH_NM, extraterrestrial_spectrum_w_m2_nm
+    from uvdose.models import action_spectra
+    from uvdose.models.spectral_grid import WAVELENGTH_NM, extraterrestrial_spectrum_w_m2_nm
 
     tau, ssa, g, moments = production_layers(0.1)
     mu0 = np.cos(np.radians(zenith_deg))

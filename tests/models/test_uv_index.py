@@ -3,7 +3,7 @@
 import numpy as np
 import pytest
 
-from models.uv_index import exposure_category, madronich_uv_index, reported_uv_index, uv_index
+from uvdose.models.uv_index import exposure_category, madronich_uv_index, reported_uv_index, uv_index
 
 
 def test_one_uv_index_unit_is_25_mw_m2_erythemal():

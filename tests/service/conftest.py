@@ -29,7 +29,7 @@ from openapi_schema_validator import OAS31Validator
 from werkzeug.test import EnvironBuilder
 from werkzeug.wrappers import Request
 
-from service.app import create_app
+from uvdose.service.app import create_app
 
 REPO = Path(__file__).resolve().parents[2]
 SPEC_PATH = REPO / "openapi.yaml"
@@ -180,7 +180,7 @@ def running_gunicorn(tmp_path_factory, **settings: str):
     log = (tmp_path_factory.mktemp("gunicorn") / "stderr.log").open("wb")
     process = subprocess.Popen(
         [sys.executable, "-m", "gunicorn", "--workers", "2", "--bind", f"127.0.0.1:{port}",
-         "--timeout", "60", "service.app:create_app()"],
+         "--timeout", "60", "uvdose.service.app:create_app()"],
         cwd=REPO, env=env, stdout=subprocess.DEVNULL, stderr=log,
     )
     base_url = f"http://127.0.0.1:{port}"

@@ -6,9 +6,9 @@ import json
 import pytest
 from flask import g, jsonify
 
-from service import auth
-from service.app import create_app
-from service.auth import OPEN_PATHS, ApiKeyConfigError
+from uvdose.service import auth
+from uvdose.service.app import create_app
+from uvdose.service.auth import OPEN_PATHS, ApiKeyConfigError
 
 # Keys of an invented orchard cooperative; they must never appear in a log line.
 ORCHARD_KEY = "orchard-coop-7Qm2v9XkL4"

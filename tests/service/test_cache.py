@@ -15,9 +15,9 @@ import numpy as np
 import pytest
 import redis
 
-import models
-from service import cache as cache_module
-from service.cache import INPUT_RESOLUTIONS, CacheSettingsError, CellGrid, GridCellCache, cache_from_settings
+from uvdose import models
+from uvdose.service import cache as cache_module
+from uvdose.service.cache import INPUT_RESOLUTIONS, CacheSettingsError, CellGrid, GridCellCache, cache_from_settings
 
 CONTEXT = "spectra=erythema,plant_damage;filter=none;spectrum=no"
 SPECTRAL_COLUMNS = 5
@@ -437,7 +437,7 @@ def test_status_reports_backend_and_whether_it_answers(redis_client):
 def test_counts_and_latency_reach_the_prometheus_metrics(redis_client):
     from prometheus_client import REGISTRY
 
-    from service import metrics
+    from uvdose.service import metrics
 
     def observed() -> float:
         return REGISTRY.get_sample_value("uvdose_cache_operation_duration_seconds_count") or 0.0

@@ -23,8 +23,8 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from models import engine
-from service.cache import CellGrid, GridCellCache
+from uvdose.models import engine
+from uvdose.service.cache import CellGrid, GridCellCache
 
 CONTEXT = "spectra=erythema,actinic_icnirp,plant_damage"
 QUANTITIES = ("effective_w_m2.erythema", "effective_w_m2.actinic_icnirp",

@@ -21,8 +21,8 @@ import numpy as np
 import pytest
 import redis
 
-from service.app import create_app
-from service.cache import GridCellCache, _Breaker
+from uvdose.service.app import create_app
+from uvdose.service.cache import GridCellCache, _Breaker
 from tests.service.test_cache import CONTEXT, RecordingEngine, assert_same, batch, expected
 
 pytestmark = pytest.mark.skipif(shutil.which("redis-server") is None, reason="needs the redis-server binary")
@@ -209,7 +209,7 @@ def _irradiance_body(n: int, cells: int, seed: int) -> dict:
 
 
 def _uncached_cell_centre_uvi(cache: GridCellCache, body: dict) -> np.ndarray:
-    from models import engine
+    from uvdose.models import engine
 
     given = body["columns"]
     columns = {
@@ -265,7 +265,7 @@ def test_gunicorn_serves_through_a_stopped_and_restarted_redis(throwaway_redis, 
     log = (tmp_path / "gunicorn.log").open("wb")
     server = subprocess.Popen(
         [sys.executable, "-m", "gunicorn", "--workers", "1", "--bind", f"127.0.0.1:{port}",
-         "--timeout", "120", "service.app:create_app()"],
+         "--timeout", "120", "uvdose.service.app:create_app()"],
         cwd=Path(__file__).resolve().parents[2], env=env, stdout=subprocess.DEVNULL, stderr=log,
     )
     base = f"http://127.0.0.1:{port}"

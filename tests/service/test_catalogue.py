@@ -1,9 +1,9 @@
 """GET /v1/catalogue: what the models define, with sources, and the enforced record ranges."""
 import pytest
 
-from models.action_spectra import ACTION_SPECTRA
-from models.filters import FILTERS
-from models.surfaces import SURFACE_TYPES
+from uvdose.models.action_spectra import ACTION_SPECTRA
+from uvdose.models.filters import FILTERS
+from uvdose.models.surfaces import SURFACE_TYPES
 
 
 @pytest.fixture

@@ -10,7 +10,7 @@ import urllib.request
 
 import pytest
 
-from service.cli import EXIT_INVALID, main, run_batch
+from uvdose.service.cli import EXIT_INVALID, main, run_batch
 from tests.service.conftest import REPO, free_loopback_port, stop, wait_until_answers
 
 # Demo scenario of our own: hourly checks on the invented "Combe Basse" orchard, 20 June.
@@ -87,7 +87,7 @@ def test_a_bad_file_is_rejected_whole_with_the_problem_on_stderr(tmp_path, capsy
 def test_progress_bar_goes_to_stderr_for_multi_chunk_files(tmp_path):
     source = tmp_path / "hours.csv"
     _write_csv(source, _records())
-    done = subprocess.run([sys.executable, "-m", "service.cli", "batch", str(source), "-", "--chunk-size", "5",
+    done = subprocess.run([sys.executable, "-m", "uvdose.service.cli", "batch", str(source), "-", "--chunk-size", "5",
                            "--progress"], cwd=REPO, capture_output=True, text=True, timeout=120)
     assert done.returncode == 0, done.stderr
     assert f"{len(HOURS)}/{len(HOURS)}" in done.stderr
@@ -96,8 +96,8 @@ def test_progress_bar_goes_to_stderr_for_multi_chunk_files(tmp_path):
 
 @pytest.mark.gunicorn
 @pytest.mark.parametrize("command", [
-    ["-m", "service.cli", "serve", "--bind", "{bind}"],  # with deploy/gunicorn.conf.py
-    ["-c", "from service.cli import serve; serve('{bind}', 1, None)"],  # the built-in defaults
+    ["-m", "uvdose.service.cli", "serve", "--bind", "{bind}"],  # with deploy/gunicorn.conf.py
+    ["-c", "from uvdose.service.cli import serve; serve('{bind}', 1, None)"],  # the built-in defaults
 ], ids=["deploy-config", "built-in-defaults"])
 def test_serve_runs_gunicorn_and_stops_cleanly_on_sigterm(tmp_path, command):
     port = free_loopback_port()

@@ -1,8 +1,8 @@
 """Settings from the environment: defaults, parsing, and a clear failure naming the variable."""
 import pytest
 
-from service.app import create_app
-from service.config import ConfigurationError, settings_from_environment
+from uvdose.service.app import create_app
+from uvdose.service.config import ConfigurationError, settings_from_environment
 
 
 def test_embedded_defaults_need_no_environment():

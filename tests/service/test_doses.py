@@ -167,7 +167,7 @@ def test_windows_served_by_gunicorn(gunicorn_server):
 
 
 def test_engine_failure_is_a_server_error_not_the_clients(client, monkeypatch):
-    from models import dose
+    from uvdose.models import dose
 
     def broken(*args, **kwargs):
         def evaluate(columns):

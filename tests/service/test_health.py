@@ -1,7 +1,7 @@
 """Liveness, readiness and the problem documents for unknown URLs and methods."""
 import pytest
 
-from service import routes_health
+from uvdose.service import routes_health
 
 
 def test_livez_answers_alive(client):
@@ -19,7 +19,7 @@ def test_readyz_reports_engine_and_cache(client):
 
 
 def test_readyz_is_503_when_the_engine_cannot_load(client, monkeypatch):
-    from models import irradiance_table
+    from uvdose.models import irradiance_table
 
     def broken():
         raise ValueError("irradiance table is truncated")

@@ -7,10 +7,10 @@ import math
 import numpy as np
 import pytest
 
-from models.action_spectra import weight_matrix
-from service.batch_io import validate_columns
-from service.problems import Problem
-from service.routes_irradiance import IrradianceRecordSchema
+from uvdose.models.action_spectra import weight_matrix
+from uvdose.service.batch_io import validate_columns
+from uvdose.service.problems import Problem
+from uvdose.service.routes_irradiance import IrradianceRecordSchema
 
 URL = "/v1/irradiance"
 
@@ -291,7 +291,7 @@ def test_vectorised_checks_flag_exactly_the_records_marshmallow_rejects():
 @pytest.mark.redis
 def test_repeated_cells_are_served_from_redis_with_the_same_numbers(make_app, contract_client_for, redis_client,
                                                                    redis_url):
-    from service import metrics
+    from uvdose.service import metrics
 
     client = contract_client_for(make_app(REDIS_URL=redis_url, UVDOSE_CACHE="redis"))
     def count(event):
@@ -316,7 +316,7 @@ def test_problem_types_tell_record_errors_from_option_errors(client):
 
 def test_the_vectorised_time_reader_agrees_with_python_fromisoformat():
     # Reference: CPython's datetime.fromisoformat (3.11) and datetime.timestamp().
-    from service.batch_io import parse_offset_datetime, unix_seconds_of_canonical_times
+    from uvdose.service.batch_io import parse_offset_datetime, unix_seconds_of_canonical_times
 
     rng = np.random.default_rng(11)
     texts = []
@@ -337,7 +337,7 @@ def test_the_vectorised_time_reader_agrees_with_python_fromisoformat():
         if was_read:
             assert value == expected, text
     # With the per-entry fallback for what it leaves, the column check reads every text as Python does.
-    from service.batch_io import ColumnRule, _check_time
+    from uvdose.service.batch_io import ColumnRule, _check_time
 
     column, bad = _check_time(ColumnRule(wire="time", column="t", kind="time", required=True), texts, len(texts))
     for text, value, rejected in zip(texts, column, bad):

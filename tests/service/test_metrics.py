@@ -2,7 +2,7 @@
 import pytest
 from prometheus_client.parser import text_string_to_metric_families
 
-from service import metrics
+from uvdose.service import metrics
 
 
 def _samples(text):

@@ -40,8 +40,8 @@ def test_the_contract_client_rejects_an_undocumented_body(app, contract_client_f
 
 def test_openapi_states_the_ranges_the_record_schema_enforces(openapi_spec):
     # One source of truth: the marshmallow declarations; openapi.yaml must say the same.
-    from service.batch_io import EARLIEST_TIME, TIME_BEFORE, column_rules
-    from service.routes_irradiance import IrradianceRecordSchema
+    from uvdose.service.batch_io import EARLIEST_TIME, TIME_BEFORE, column_rules
+    from uvdose.service.routes_irradiance import IrradianceRecordSchema
 
     record = openapi_spec["components"]["schemas"]["IrradianceRecord"]
     rules = {rule.wire: rule for rule in column_rules(IrradianceRecordSchema())}
@@ -63,12 +63,12 @@ def test_openapi_states_the_ranges_the_record_schema_enforces(openapi_spec):
 
 
 def test_openapi_lists_the_action_spectra_the_models_define(openapi_spec):
-    from models.action_spectra import ACTION_SPECTRA
-    from models.engine import DEFAULT_SPECTRA
+    from uvdose.models.action_spectra import ACTION_SPECTRA
+    from uvdose.models.engine import DEFAULT_SPECTRA
 
     from marshmallow import validate
 
-    from service.routes_irradiance import IrradianceOptionsSchema
+    from uvdose.service.routes_irradiance import IrradianceOptionsSchema
 
     schemas = openapi_spec["components"]["schemas"]
     assert set(schemas["SpectrumName"]["enum"]) == set(ACTION_SPECTRA)
@@ -92,7 +92,7 @@ from schemathesis.specs.openapi.checks import (  # noqa: E402
 
 @pytest.fixture
 def generated_schema():
-    from service.app import create_app
+    from uvdose.service.app import create_app
 
     # A small record limit keeps each generated batch cheap to compute.
     app = create_app({"TESTING": True, "UVDOSE_MAX_RECORDS": 20, "UVDOSE_CACHE": "off"})

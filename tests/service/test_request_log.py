@@ -6,8 +6,8 @@ import re
 import pytest
 from flask import g, jsonify, request
 
-from service.app import create_app
-from service.request_log import (
+from uvdose.service.app import create_app
+from uvdose.service.request_log import (
     REQUEST_ID_HEADER,
     REQUEST_ID_MAX_LENGTH,
     LogSettingsError,

@@ -5,8 +5,8 @@ import urllib.request
 import numpy as np
 import pytest
 
-from models.ozone_climatology import climatological_ozone_du, day_of_year_from_unix
-from models.ozone_grids import OzoneResolver
+from uvdose.models.ozone_climatology import climatological_ozone_du, day_of_year_from_unix
+from uvdose.models.ozone_grids import OzoneResolver
 
 ROUTE = "/v1/ozone"
 
@@ -82,7 +82,7 @@ def test_operator_grid_then_climatology_and_same_resolver(grid_app, contract_cli
 
 
 def test_the_engine_uses_the_same_values(grid_app, contract_client_for):
-    engine = pytest.importorskip("models.engine")
+    engine = pytest.importorskip("uvdose.models.engine")
     client = contract_client_for(grid_app)
     lat, lon = np.array([51.0, 48.0]), np.array([4.5, 4.5])
     t = np.array([_unix("2026-04-14T11:00:00"), _unix("2026-04-14T11:00:00")])
@@ -165,7 +165,7 @@ def test_envelope_errors(client, make_app, contract_client_for):
 
 
 def test_unreadable_operator_grid_fails_at_start_up(make_app, tmp_path):
-    from models.ozone_grids import OzoneGridError
+    from uvdose.models.ozone_grids import OzoneGridError
 
     bad = tmp_path / "broken.csv"
     bad.write_text("date,latitude_deg,longitude_deg,ozone_du\n2026-04-13,50,3,0.35\n")
