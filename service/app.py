@@ -6,7 +6,7 @@ from typing import Any
 
 from flask import Flask
 
-from uvdose.service import auth, cache, metrics, problems, request_log
+from uvdose.service import auth, engine_gateway, metrics, problems, request_log
 from uvdose.service.config import settings_from_environment
 
 
@@ -24,11 +24,8 @@ def create_app(config: dict[str, Any] | None = None) -> Flask:
     request_log.init_app(app)
     auth.init_app(app)
     metrics.init_app(app)
-    cache.init_app(app)
+    engine_gateway.init_app(app)  # ozone resolver, cache, the engine's tables loaded now
     _register_blueprints(app)
-    # Load the engine's precomputed table now, not on the first request (and, with
-    # gunicorn's preload, once before the workers fork).
-    import_module("uvdose.service.routes_health").engine_check()
     return app
 
 

@@ -115,7 +115,7 @@ def run_batch(
     import orjson
     from tqdm import tqdm
 
-    from uvdose.service import batch_io, routes_irradiance as irr
+    from uvdose.service import engine_gateway, irradiance_batch as irr, wire_formats
     from uvdose.service.problems import Problem, response_for
 
     options: dict[str, str] = {}
@@ -126,7 +126,7 @@ def run_batch(
     in_type = _media_type(source, input_format)
     data = _read(source)
     try:
-        if in_type == batch_io.JSON_MEDIA_TYPE and options:
+        if in_type == wire_formats.JSON_MEDIA_TYPE and options:
             # Command-line options override those in the file.
             body = orjson.loads(data)
             if isinstance(body, dict):
@@ -135,8 +135,8 @@ def run_batch(
                 if include_spectrum:
                     body["include_spectrum"] = True
                 data = orjson.dumps(body)
-        query = options if in_type == batch_io.CSV_MEDIA_TYPE else {}
-        batch_request = batch_io.read_batch_bytes(
+        query = options if in_type == wire_formats.CSV_MEDIA_TYPE else {}
+        batch_request = wire_formats.read_batch_bytes(
             data, in_type, query, record_schema=irr.IrradianceRecordSchema(),
             options_schema=irr.IrradianceOptionsSchema(), max_records=sys.maxsize)
     except (Problem, orjson.JSONDecodeError) as error:
@@ -151,7 +151,7 @@ def run_batch(
     except Problem as problem:
         sys.stderr.write(response_for(problem).get_data(as_text=True) + "\n")
         return EXIT_INVALID
-    chosen = batch_request.options.get("spectra") or irr.default_spectra()
+    chosen = batch_request.options.get("spectra") or engine_gateway.default_spectra()
     with_spectrum = batch_request.options["include_spectrum"]
     out_type = _media_type(target, output_format)
     n = len(batch)
@@ -162,19 +162,20 @@ def run_batch(
             for start in range(0, n, chunk_size):
                 part = slice(start, min(start + chunk_size, n))
                 columns = {name: values[part] for name, values in all_columns.items()}
-                out, wavelength_nm, spectrum = irr.run(columns, batch.ids[part], chosen, with_spectrum)
+                out, wavelength_nm, spectrum = irr.compute(engine_gateway.OFFLINE, columns, batch.ids[part], chosen,
+                                                           with_spectrum)
                 first = start == 0
-                if out_type == batch_io.CSV_MEDIA_TYPE:
-                    stream.write(batch_io.csv_text(irr.csv_columns(out, wavelength_nm, spectrum), header=first))
+                if out_type == wire_formats.CSV_MEDIA_TYPE:
+                    stream.write(wire_formats.csv_text(irr.csv_columns(out, wavelength_nm, spectrum), header=first))
                 else:
                     if first:
                         head = orjson.dumps(irr.envelope(chosen, wavelength_nm),
                                             option=orjson.OPT_SERIALIZE_NUMPY).decode()
                         stream.write(head[:-1] + ',"results":[')
-                    rows = orjson.dumps(irr.result_rows(out, chosen, spectrum)).decode()[1:-1]
+                    rows = orjson.dumps(irr.result_rows(out, spectrum)).decode()[1:-1]
                     stream.write(("" if first else ",") + rows)
                 bar.update(part.stop - part.start)
-        if out_type == batch_io.JSON_MEDIA_TYPE:
+        if out_type == wire_formats.JSON_MEDIA_TYPE:
             stream.write("]}\n")
     finally:
         if stream is not sys.stdout:

@@ -13,8 +13,11 @@ from typing import Any
 from flask import Blueprint, current_app
 
 from uvdose.models import MODEL_VERSION
-from uvdose.service.batch_io import column_rules, json_response
-from uvdose.service.routes_irradiance import CAUTION, IrradianceRecordSchema, default_spectra
+from uvdose.service.cautions import CAUTION
+from uvdose.service.column_checks import column_rules
+from uvdose.service.engine_gateway import default_spectra
+from uvdose.service.irradiance_batch import IrradianceRecordSchema
+from uvdose.service.wire_formats import json_response
 
 blueprint = Blueprint("catalogue", __name__)
 

@@ -1,47 +1,81 @@
 """Cumulative doses: ``POST /v1/doses/windows``, ``/v1/doses/fields``, ``/v1/doses/routes``.
 
-Request → schemas below (records through :mod:`service.batch_io`) → arrays →
-``models.dose`` / ``models.routes`` with the engine as evaluator (through the grid-cell
-cache when one is attached) → arrays → JSON. The physics, the quadrature and their
-sources are documented in those modules; this layer only validates and shapes.
+Request → record schemas below, read by the shared readers and column checks
+(:mod:`service.wire_formats`, :mod:`service.column_checks`) → arrays → ``models.dose`` /
+``models.routes`` with the engine as evaluator (:mod:`service.engine_gateway`, through
+the grid-cell cache) → arrays → JSON. The physics, the quadrature and their sources are
+documented in those modules; this layer only validates and shapes.
 
 * windows: each record is a place and a time window (``start``, ``end``) with the
   shared conditions fields, optional cloud cover and a receiver orientation.
 * fields: each record is a field; the request names a season (``first_day`` …
   ``last_day``, UTC dates) and optional per-day ozone and cloud inputs as a column
-  table (``daily``); the answer has per-day doses, running season totals and the
-  ratio to the same field's clear-sky climatological dose.
+  table (``daily``, one :class:`DailyEntrySchema` record per entry); the answer has
+  per-day doses, running season totals and the ratio to the same field's clear-sky
+  climatological dose.
 * routes: each route is a list of timestamped points (or a GeoJSON Feature with a
-  ``times`` property); the answer has the dose on the driver's side window.
+  ``times`` property, turned into the same points first); the points of all routes are
+  checked as one batch of :class:`RoutePointSchema` records, the route-level members as
+  :class:`RouteConditionsSchema` records. The answer has the dose on the driver's side
+  window.
+
+Errors in the ``daily`` table are request-wide (``index`` null) and name the entry:
+``daily.day[4]``. Errors in a route carry the route's position as ``index`` and its id,
+and name the value by its path in the body: ``routes[3].points[7].lat``, or in a GeoJSON
+Feature ``routes[3].geometry.coordinates[7][1]`` and ``routes[3].properties.times[7]``.
 """
 from __future__ import annotations
 
 import hashlib
+from dataclasses import dataclass
 from typing import Any, Mapping
 
 import numpy as np
 from flask import Blueprint, Response, current_app, request
-from marshmallow import ValidationError, fields, validate, validates
+from marshmallow import fields, validate
 
-from uvdose.models import MODEL_VERSION, clear_sky, clouds, dose, exposure, filters, routes
+from uvdose.models import MODEL_VERSION, clouds, dose, exposure, filters, routes
 from uvdose.models.spectral_grid import WAVELENGTH_NM
-from uvdose.service import metrics
-from uvdose.service.batch_io import (
+from uvdose.service import engine_gateway, metrics
+from uvdose.service.cautions import DOSE_CAUTION
+from uvdose.service.column_checks import check_columns, invalid_records
+from uvdose.service.problems import FieldError, Problem
+from uvdose.service.record_fields import (
+    AOD_550,
+    CLOUD_COVER,
+    CLOUD_FACTOR,
+    CLOUD_OKTAS,
+    ELEVATION,
+    LATITUDE,
+    LONGITUDE,
+    OZONE_COLUMN,
+    RECORD_ID,
+    SPECTRA_OPTION,
+    SURFACE_ALBEDO,
     ConditionsRecordSchema,
-    OffsetDateTime,
+    IsoDate,
     OneOfRegistry,
     OptionsSchema,
+    RecordSchema,
+    StrictBoolean,
     StrictNumber,
     Text,
+    WholeNumber,
     between,
+    offset_time,
+    time_span,
+)
+from uvdose.service.time_text import iso_utc
+from uvdose.service.wire_formats import (
+    given_columns,
     json_response,
+    load_options,
     negotiate,
-    parse_offset_datetime,
     read_batch,
+    read_json_object,
+    row_columns,
     rows_from_columns,
 )
-from uvdose.service.problems import FieldError, Problem
-from uvdose.service.routes_irradiance import StrictBoolean, compute_through_cache
 
 blueprint = Blueprint("doses", __name__)
 
@@ -60,24 +94,10 @@ DEFAULT_FIELD_SPECTRA = ("plant_damage", "plant_growth", "erythema")
 DEFAULT_ROUTE_SPECTRA = ("erythema", "actinic_icnirp")
 DEFAULT_ROUTE_GLAZING = "clear_side_glass"
 
-CAUTION = exposure.CAUTION
+_SECONDS_PER_DAY = 86400
 
 
 # -- shared option fields -------------------------------------------------------------
-
-def _spectrum_names():
-    from uvdose.models.action_spectra import ACTION_SPECTRA
-
-    return ACTION_SPECTRA.keys()
-
-
-def _spectra_field():
-    return fields.List(
-        fields.String(validate=OneOfRegistry(_spectrum_names, "action spectrum"),
-                      error_messages={"invalid": "must be a string"}),
-        validate=validate.Length(min=1, max=8, error="must name between {min} and {max} spectra"),
-        error_messages={"invalid": "must be an array of spectrum names"})
-
 
 class CurveSchema(OptionsSchema):
     wavelength_nm = fields.List(StrictNumber(allow_none=False), required=True)
@@ -85,20 +105,14 @@ class CurveSchema(OptionsSchema):
 
 
 class DoseOptionsSchema(OptionsSchema):
-    spectra = _spectra_field()
+    spectra = SPECTRA_OPTION
     step_s = StrictNumber(validate=between(dose.MIN_STEP_S, dose.MAX_STEP_S))
     glazing = Text(validate=OneOfRegistry(lambda: filters.FILTERS.keys(), "glazing"))
     transmittance_curve = fields.Nested(CurveSchema)
 
-    @validates("spectra")
-    def _distinct(self, value: list[str], **kwargs: Any) -> None:
-        if len(set(value)) != len(value):
-            raise ValidationError("names a spectrum twice")
-
 
 def _options_problem(field: str, reason: str) -> Problem:
-    return Problem(422, "invalid-options", "The request options are invalid", "Nothing was computed.",
-                   [FieldError(field=field, reason=reason)])
+    return invalid_records([FieldError(field=field, reason=reason)], 0)
 
 
 def _transmittance(options: Mapping[str, Any], default: str | None = None):
@@ -114,25 +128,6 @@ def _transmittance(options: Mapping[str, Any], default: str | None = None):
         digest = hashlib.sha256(np.asarray(values, dtype=np.float64).tobytes()).hexdigest()[:16]
         return values, f"curve:{digest}"
     return values, name or "none"
-
-
-def _evaluator(spectra, transmittance, label: str, kind: str) -> dose.Evaluator:
-    resolver = current_app.extensions.get("uvdose_ozone")
-    budget = clear_sky.FullSolveBudget(current_app.config["UVDOSE_MAX_FULL_SOLVE_RECORDS"])
-    compute = dose.engine_evaluator(spectra, transmittance=transmittance, ozone_resolver=resolver,
-                                    full_solve_budget=budget)
-    context = (f"doses:{kind};spectra={','.join(spectra)};glazing={label};"
-               f"ozone={getattr(resolver, 'fingerprint', 'default')}")
-
-    def evaluate(columns):
-        # Samples are built from validated input, so a ValueError inside the engine is
-        # our fault, not the client's: keep it out of the 422 path below.
-        try:
-            return compute_through_cache(columns, compute, context)
-        except ValueError as error:
-            raise RuntimeError(f"engine failed on dose samples: {error}") from error
-
-    return evaluate
 
 
 def _model_problem(error: ValueError, field_prefix: str = "") -> Problem:
@@ -152,7 +147,7 @@ def _exposure_rows(doses: Mapping[str, np.ndarray], final: Mapping[str, np.ndarr
 
 
 def _read_records(record_schema, options_schema):
-    """(validated batch, options) of a JSON records/columns body (service.batch_io)."""
+    """(validated batch, options) of a JSON records/columns body."""
     negotiate(request)
     batch_request = read_batch(request, record_schema=record_schema, options_schema=options_schema,
                                max_records=current_app.config["UVDOSE_MAX_RECORDS"])
@@ -164,33 +159,28 @@ def _record_id(ids, index: int):
 
 
 def _common(spectra, step_s, label) -> dict[str, Any]:
-    return {"model_version": MODEL_VERSION, "caution": CAUTION, "spectra": list(spectra),
+    return {"model_version": MODEL_VERSION, "caution": DOSE_CAUTION, "spectra": list(spectra),
             "step_s": step_s, "glazing": label}
-
-
-def _iso(unix_s: np.ndarray) -> list[str]:
-    return [f"{t}Z" for t in np.asarray(np.round(unix_s), dtype="int64").astype("datetime64[s]")]
 
 
 # -- windows --------------------------------------------------------------------------
 
-def _time_range() -> validate.Range:
-    # The same span as the shared ``time`` field.
-    return ConditionsRecordSchema._declared_fields["time_unix_s"].validators[0]
-
-
 class WindowRecordSchema(ConditionsRecordSchema):
     """A place, a time window and the conditions there."""
 
-    time_unix_s = OffsetDateTime(data_key="start", required=True, validate=_time_range(),
-                                 metadata={"units": "ISO 8601 with offset"})
-    end_unix_s = OffsetDateTime(data_key="end", required=True, validate=_time_range(),
-                                metadata={"units": "ISO 8601 with offset"})
-    cloud_cover_fraction = StrictNumber(data_key="cloud_cover", validate=between(0, 1))
-    cloud_cover_oktas = StrictNumber(data_key="cloud_oktas", validate=between(0, 8))
+    time_unix_s = offset_time("start")
+    end_unix_s = offset_time("end")
+    cloud_cover_fraction = CLOUD_COVER
+    cloud_cover_oktas = CLOUD_OKTAS
     tilt_deg = StrictNumber(validate=between(0, 180))
     receiver_azimuth_deg = StrictNumber(validate=between(0, 360))
     sky_view_factor = StrictNumber(validate=between(0, 1))
+
+    exclusive_fields = ConditionsRecordSchema.exclusive_fields + (
+        ("cloud_modification_factor", "cloud_cover_fraction"),
+        ("cloud_modification_factor", "cloud_cover_oktas"),
+        ("cloud_cover_fraction", "cloud_cover_oktas"),
+    )
 
 
 _WINDOW_RECORDS = WindowRecordSchema()
@@ -228,7 +218,7 @@ def windows() -> Response:
     spectra = list(options.get("spectra") or DEFAULT_WINDOW_SPECTRA)
     step_s = float(options.get("step_s") or dose.DEFAULT_WINDOW_STEP_S)
     transmittance, label = _transmittance(options)
-    evaluate = _evaluator(spectra, transmittance, label, "windows")
+    evaluate = engine_gateway.current().dose_evaluator(spectra, transmittance, label, "windows")
     try:
         out = dose.window_doses(cols, start, end, evaluate, step_s=step_s, spectra=spectra)
     except ValueError as error:
@@ -236,7 +226,7 @@ def windows() -> Response:
     metrics.count_records(WINDOWS_ROUTE, len(batch))
     doses = out["dose_j_m2"]
     columns: dict[str, list] = {
-        "id": batch.ids.tolist(), "start": _iso(start), "end": _iso(end),
+        "id": batch.ids.tolist(), "start": iso_utc(start), "end": iso_utc(end),
         "dose_j_m2": rows_from_columns({k: np.asarray(v).tolist() for k, v in doses.items()}),
         "peak_uv_index": np.asarray(out["peak_uv_index"]).tolist(),
         "cloud_factor": [None if np.isnan(x) else x for x in cols["cloud_modification_factor"].tolist()],
@@ -257,66 +247,83 @@ class FieldRecordSchema(ConditionsRecordSchema):
         exclude = ("time_unix_s", "ozone_du", "cloud_modification_factor")
 
 
-class DailyTableSchema(OptionsSchema):
-    field = fields.List(fields.Integer(strict=True), required=True)
-    day = fields.List(fields.String(), required=True)
-    ozone_du = fields.List(StrictNumber(validate=between(50, 700)))
-    cloud_factor = fields.List(StrictNumber(validate=between(0, 1.5)))
-    cloud_oktas = fields.List(StrictNumber(validate=between(0, 8)))
+class DailyEntrySchema(RecordSchema):
+    """One entry of the ``daily`` table: one field's ozone and clouds on one day."""
+
+    error_messages = {"unknown": "is not a column of the daily table"}
+
+    field_index = WholeNumber(data_key="field", required=True,
+                              validate=validate.Range(min=0, error="must be a record index, 0 or more"))
+    day_unix_s = IsoDate(data_key="day", required=True,
+                         validate=time_span("must be a date from 1950-01-01 to 2100-12-31"))
+    ozone_du = OZONE_COLUMN
+    cloud_modification_factor = CLOUD_FACTOR
+    cloud_cover_oktas = CLOUD_OKTAS
+
+    exclusive_fields = (("cloud_modification_factor", "cloud_cover_oktas"),)
 
 
 class FieldOptionsSchema(DoseOptionsSchema):
     first_day = fields.Date(required=True, error_messages={"invalid": "must be a date YYYY-MM-DD"})
     last_day = fields.Date(required=True, error_messages={"invalid": "must be a date YYYY-MM-DD"})
-    daily = fields.Nested(DailyTableSchema)
+    daily = fields.Raw(error_messages={"null": "must not be null"})  # read as DailyEntrySchema records
 
 
 _FIELD_RECORDS = FieldRecordSchema()
 _FIELD_OPTIONS = FieldOptionsSchema()
+_DAILY_ENTRIES = DailyEntrySchema()
 
 
-def _daily_inputs(daily: Mapping[str, list] | None, n_fields: int, first: np.datetime64, n_days: int):
-    """(ozone (F, D), CMF (F, D)) from the optional daily column table."""
+def _daily_table(daily: Any, n_fields: int, n_days: int):
+    """The ``daily`` table's entries as validated columns (entries named ``daily.<column>[i]``)."""
+    most = n_fields * n_days
+    if isinstance(daily, dict) and any(isinstance(v, list) and len(v) > most for v in daily.values()):
+        raise _options_problem("daily", f"has more entries than fields × days ({most}); give each field "
+                                        "and day at most once")
+    try:
+        raw, n = given_columns(daily, _DAILY_ENTRIES, most, name="daily", allow_empty=True)
+    except Problem as problem:
+        if problem.status != 422:
+            raise
+        raise invalid_records(problem.errors, 0) from None
+    entries, errors = check_columns(raw, _DAILY_ENTRIES, n=n)
+    return entries, [FieldError(field=f"daily.{error.field}" + (f"[{error.index}]" if error.index is not None else ""),
+                                reason=error.reason) for error in errors]
+
+
+def _daily_inputs(daily: Any, n_fields: int, first: np.datetime64, n_days: int):
+    """(ozone (F, D), CMF (F, D)) from the optional daily table."""
     ozone = np.full((n_fields, n_days), np.nan)
     cmf = np.full((n_fields, n_days), np.nan)
-    if not daily:
+    if daily is None:
         return ozone, cmf
-    field_index = np.asarray(daily["field"], dtype=np.int64)
-    n = field_index.size
-    errors: list[FieldError] = []
-    for name in ("day", "ozone_du", "cloud_factor", "cloud_oktas"):
-        if name in daily and len(daily[name]) != n:
-            errors.append(FieldError(field=f"daily.{name}", reason=f"has {len(daily[name])} entries, expected {n}"))
+    entries, errors = _daily_table(daily, n_fields, n_days)
     if errors:
-        raise Problem(422, "invalid-options", "The request options are invalid", "Nothing was computed.", errors)
-    try:
-        day = np.asarray(daily["day"], dtype="datetime64[D]")
-    except ValueError:
-        raise _options_problem("daily.day", "every entry must be a date YYYY-MM-DD") from None
-    day_index = (day - first).astype(np.int64)
-    bad = (field_index < 0) | (field_index >= n_fields)
+        raise invalid_records(errors, 0)
+    n = len(entries)
+    if not n:
+        return ozone, cmf
+    columns = entries.columns
+    field_index = columns["field_index"].astype(np.int64)
+    day_index = (columns["day_unix_s"] // _SECONDS_PER_DAY).astype(np.int64) - first.astype(np.int64)
     errors += [FieldError(field=f"daily.field[{i}]", reason=f"must be a record index 0–{n_fields - 1}")
-               for i in np.flatnonzero(bad)[:100]]
-    bad_day = (day_index < 0) | (day_index >= n_days)
+               for i in np.flatnonzero(field_index >= n_fields)[:100]]
     errors += [FieldError(field=f"daily.day[{i}]", reason="must lie between first_day and last_day")
-               for i in np.flatnonzero(bad_day)[:100]]
+               for i in np.flatnonzero((day_index < 0) | (day_index >= n_days))[:100]]
     key = field_index * n_days + day_index
-    dup = np.zeros(n, bool)
-    if n:
-        order = np.argsort(key, kind="stable")
-        dup[order[1:]] = key[order][1:] == key[order][:-1]
+    order = np.argsort(key, kind="stable")
+    repeated = np.zeros(n, bool)
+    repeated[order[1:]] = key[order][1:] == key[order][:-1]
     errors += [FieldError(field=f"daily.day[{i}]", reason="repeats a field and day given before")
-               for i in np.flatnonzero(dup)[:100]]
+               for i in np.flatnonzero(repeated)[:100]]
     if errors:
-        raise Problem(422, "invalid-options", "The request options are invalid", "Nothing was computed.", errors)
+        raise invalid_records(errors, 0)
 
     def column(name):
-        values = daily.get(name)
-        return np.full(n, np.nan) if values is None else np.array(
-            [np.nan if v is None else v for v in values], dtype=float)
+        return columns.get(name, np.full(n, np.nan))
 
     try:
-        day_cmf = clouds.resolve_cmf(column("cloud_factor"), None, column("cloud_oktas"))
+        day_cmf = clouds.resolve_cmf(column("cloud_modification_factor"), None, column("cloud_cover_oktas"))
     except ValueError as error:
         raise _options_problem("daily", str(error).replace("record", "entry")) from None
     ozone[field_index, day_index] = column("ozone_du")
@@ -342,7 +349,7 @@ def field_doses() -> Response:
     quadrature = (dict(day_quadrature="trapezoid", step_s=float(step_s)) if step_s is not None
                   else dict(day_quadrature="gauss_legendre"))
     transmittance, label = _transmittance(options)
-    evaluate = _evaluator(spectra, transmittance, label, "fields")
+    evaluate = engine_gateway.current().dose_evaluator(spectra, transmittance, label, "fields")
     try:
         season = dose.field_season(batch.columns, days, evaluate, ozone_du=ozone,
                                    cloud_modification_factor=cmf, spectra=spectra, **quadrature)
@@ -356,8 +363,8 @@ def field_doses() -> Response:
     daily_lists = {k: v.tolist() for k, v in season.daily_dose_j_m2.items()}
     season_lists = {k: v.tolist() for k, v in season.season_dose_j_m2.items()}
     ratio_lists = {k: np.where(np.isnan(v), None, v).tolist() for k, v in season.ratio_to_clear_sky.items()}
-    sunrise = [_iso(row) for row in season.sunrise_unix_s]
-    sunset = [_iso(row) for row in season.sunset_unix_s]
+    sunrise = [iso_utc(row) for row in season.sunrise_unix_s]
+    sunset = [iso_utc(row) for row in season.sunset_unix_s]
     states = state_names[season.sun_state + 1].tolist()
     peak = season.peak_uv_index.tolist()
     for f, record_id in enumerate(batch.ids.tolist()):
@@ -382,128 +389,200 @@ class RouteOptionsSchema(DoseOptionsSchema):
     driver_side = Text(validate=validate.OneOf(["left", "right"], error="must be 'left' or 'right'"))
     roof_cutoff_elevation_deg = StrictNumber(validate=between(0, 90))
     cab_sky_view_factor = StrictNumber(validate=between(0, 1))
-    routes = fields.Raw(required=True)
+    routes = fields.Raw(required=True)  # read as RouteConditionsSchema and RoutePointSchema records
+
+
+class RoutePointSchema(RecordSchema):
+    """One timestamped fix of a route (a ``points`` entry, or one GeoJSON coordinate with its time)."""
+
+    error_messages = {"unknown": "is not a field of a route point"}
+
+    time_unix_s = offset_time()
+    latitude_deg = LATITUDE
+    longitude_deg = LONGITUDE
+    stop = StrictBoolean(load_default=False, allow_none=True)  # null: not given, as for every field
+    gap = StrictBoolean(load_default=False, allow_none=True)
+
+
+class RouteConditionsSchema(RecordSchema):
+    """What a route gives besides its points: its id and the conditions along it."""
+
+    error_messages = {"unknown": "is not a field of a route"}
+
+    id = RECORD_ID
+    ozone_du = OZONE_COLUMN
+    cloud_modification_factor = CLOUD_FACTOR
+    surface_albedo = SURFACE_ALBEDO
+    aod_550 = AOD_550
+    elevation_m = ELEVATION
 
 
 _ROUTE_OPTIONS = RouteOptionsSchema()
-_ROUTE_CONDITIONS = {"ozone_du": (50, 700), "cloud_factor": (0, 1.5), "surface_albedo": (0, 1),
-                     "aod_550": (0, 5), "elevation_m": (-500, 9000)}
-_ROUTE_CONDITION_COLUMNS = {"cloud_factor": "cloud_modification_factor"}
-_ROUTE_KEYS = {"id", "points", *_ROUTE_CONDITIONS}
-_POINT_KEYS = {"time", "lat", "lon", "stop", "gap"}
+_ROUTE_POINTS = RoutePointSchema()
+_ROUTE_CONDITIONS = RouteConditionsSchema()
+_CONDITION_WIRES = frozenset(field.data_key or name for name, field in _ROUTE_CONDITIONS.fields.items())
+_FEATURE_POINT_PATHS = {"time": "properties.times[{p}]", "lat": "geometry.coordinates[{p}][1]",
+                        "lon": "geometry.coordinates[{p}][0]", "stop": "properties.stops[{p}]",
+                        "gap": "properties.gaps[{p}]"}
 
 
-def _route_arrays(index: int, route: Any, errors: list[FieldError]):
-    """(times, lats, lons, stops, gaps, id, conditions) of one route, or None if it is bad."""
-    def err(field, reason):
-        errors.append(FieldError(field=f"routes[{index}]{field}", reason=reason, index=index,
-                                 id=route.get("id") if isinstance(route, dict) and isinstance(route.get("id"), str) else None))
+@dataclass
+class _RouteBatch:
+    """The routes of one request, flattened: one route-level record per route, one point
+    record per fix, and what maps a point back to its route and its place in the body."""
 
-    if not isinstance(route, dict):
-        err("", "must be an object")
+    conditions: list[dict]
+    points: list[Any]
+    point_route: list[int]
+    point_start: list[int]
+    is_feature: list[bool]
+    errors: list[FieldError]
+
+    def error(self, route: int, where: str, reason: str, route_body: Any) -> None:
+        route_id = route_body.get("id") if isinstance(route_body, dict) else None
+        self.errors.append(FieldError(field=f"routes[{route}]{where}", reason=reason, index=route,
+                                      id=route_id if isinstance(route_id, str) else None))
+
+    def point_path(self, point: int, wire: str | None) -> str:
+        route = self.point_route[point]
+        p = point - self.point_start[route]
+        if self.is_feature[route]:
+            return f"routes[{route}]." + (_FEATURE_POINT_PATHS[wire].format(p=p) if wire else f"geometry.coordinates[{p}]")
+        return f"routes[{route}].points[{p}]" + (f".{wire}" if wire else "")
+
+
+def _feature_points(index: int, feature: dict, into: _RouteBatch) -> tuple[list, dict] | None:
+    """A GeoJSON Feature as point records and its route-level record (None if malformed)."""
+    props = feature.get("properties") or {}
+    geometry = feature.get("geometry") or {}
+    if not isinstance(props, dict) or not isinstance(geometry, dict):
+        into.error(index, "", "must be a GeoJSON Feature with object `geometry` and `properties`", feature)
         return None
-    if route.get("type") == "Feature":
-        props = route.get("properties") or {}
-        geometry = route.get("geometry") or {}
-        if geometry.get("type") not in ("LineString", "MultiPoint"):
-            err(".geometry.type", "must be LineString or MultiPoint")
-            return None
-        coords = geometry.get("coordinates")
-        times = props.get("times")
-        if not isinstance(coords, list) or not isinstance(times, list) or len(coords) != len(times):
-            err(".properties.times", "must be an array with one time per coordinate")
-            return None
-        try:
-            arr = np.asarray(coords, dtype=float)[:, :2]
-        except (ValueError, TypeError, IndexError):
-            err(".geometry.coordinates", "must be [longitude, latitude] number pairs")
-            return None
-        lons, lats = arr[:, 0], arr[:, 1]
-        stops = props.get("stops", [False] * len(times))
-        gaps = props.get("gaps", [False] * len(times))
-        conditions, route_id = props, route.get("id", props.get("id"))
-    else:
-        points = route.get("points")
-        if not isinstance(points, list) or not all(isinstance(p, dict) for p in points):
-            err(".points", "must be an array of {time, lat, lon} objects")
-            return None
-        unknown = sorted(set(route) - _ROUTE_KEYS) + [
-            f"points.{k}" for k in sorted(set().union(*points) - _POINT_KEYS)]
-        if unknown:
-            err(f".{unknown[0]}", "is not a field of a route" if "." not in unknown[0]
-                else "is not a field of a route point")
-            return None
-        times = [p.get("time") for p in points]
-        try:
-            lats = np.array([p.get("lat") for p in points], dtype=float)
-            lons = np.array([p.get("lon") for p in points], dtype=float)
-        except (TypeError, ValueError):
-            err(".points", "every point needs numeric lat and lon")
-            return None
-        stops = [p.get("stop", False) for p in points]
-        gaps = [p.get("gap", False) for p in points]
-        conditions, route_id = route, route.get("id")
-    if not all(isinstance(s, bool) for s in list(stops) + list(gaps)) or len(stops) != len(times) or len(gaps) != len(times):
-        err(".stops" if route.get("type") == "Feature" else ".points", "stop and gap must be true or false, one per point")
+    if geometry.get("type") not in ("LineString", "MultiPoint"):
+        into.error(index, ".geometry.type", "must be LineString or MultiPoint", feature)
         return None
-    try:
-        t = np.array([parse_offset_datetime(x) for x in times], dtype=float)
-    except (TypeError, ValueError):
-        err(".times" if route.get("type") == "Feature" else ".points",
-            "every time must be ISO 8601 with a UTC offset")
+    coordinates, times = geometry.get("coordinates"), props.get("times")
+    if not isinstance(coordinates, list):
+        into.error(index, ".geometry.coordinates", "must be an array of [longitude, latitude] positions", feature)
         return None
-    values = {}
-    for name, (low, high) in _ROUTE_CONDITIONS.items():
-        v = conditions.get(name)
-        if v is None:
-            values[_ROUTE_CONDITION_COLUMNS.get(name, name)] = np.nan
-        elif isinstance(v, bool) or not isinstance(v, (int, float)) or not low <= v <= high:
-            err(f".{name}", f"must be a number between {low} and {high}")
+    if not isinstance(times, list) or len(times) != len(coordinates):
+        into.error(index, ".properties.times", "must be an array with one time per coordinate", feature)
+        return None
+    flags = {}
+    for name, member in (("stop", "stops"), ("gap", "gaps")):
+        values = props.get(member, [None] * len(times))
+        if not isinstance(values, list) or len(values) != len(times):
+            into.error(index, f".properties.{member}", "must be an array with one boolean per coordinate", feature)
             return None
+        flags[name] = values
+    bad = [p for p, position in enumerate(coordinates) if not isinstance(position, list) or len(position) < 2]
+    for p in bad[:100]:
+        into.error(index, f".geometry.coordinates[{p}]", "must be a [longitude, latitude] position", feature)
+    if bad:
+        return None
+    points = [{"time": t, "lon": position[0], "lat": position[1], "stop": s, "gap": g}
+              for t, position, s, g in zip(times, coordinates, flags["stop"], flags["gap"])]
+    conditions = {name: props[name] for name in _CONDITION_WIRES & props.keys()}
+    conditions["id"] = feature.get("id", props.get("id"))
+    return points, conditions
+
+
+def _flatten_routes(raw_routes: list) -> _RouteBatch:
+    """Every route's points as one list of point records, and one route-level record per route."""
+    flat = _RouteBatch([], [], [], [], [], [])
+    for index, route in enumerate(raw_routes):
+        flat.point_start.append(len(flat.points))
+        flat.is_feature.append(isinstance(route, dict) and route.get("type") == "Feature")
+        if not isinstance(route, dict):
+            flat.error(index, "", "must be an object", route)
+            parsed = None
+        elif flat.is_feature[-1]:
+            parsed = _feature_points(index, route, flat)
+        elif not isinstance(route.get("points"), list):
+            flat.error(index, ".points", "must be an array of {time, lat, lon} objects", route)
+            parsed = None
         else:
-            values[_ROUTE_CONDITION_COLUMNS.get(name, name)] = float(v)
-    return t, lats, lons, np.asarray(stops, bool), np.asarray(gaps, bool), route_id, values
+            parsed = route["points"], {key: value for key, value in route.items() if key != "points"}
+        points, conditions = parsed or ([], {})
+        flat.conditions.append(conditions)
+        flat.points.extend(points)
+        flat.point_route.extend([index] * len(points))
+    return flat
+
+
+def _route_count(raw_routes: list) -> int:
+    """Points sent, all routes together (counted before any is read)."""
+    def size(route):
+        if not isinstance(route, dict):
+            return 0
+        points = route.get("points")
+        if route.get("type") == "Feature":
+            geometry = route.get("geometry")
+            points = geometry.get("coordinates") if isinstance(geometry, dict) else None
+        return len(points) if isinstance(points, list) else 0
+
+    return sum(map(size, raw_routes))
+
+
+def _read_routes(raw_routes: list) -> tuple[routes.RoutePoints, dict[str, np.ndarray], np.ndarray]:
+    """(points of every route, per-route conditions (R,), route ids) of valid routes; else a 422
+    problem naming every bad value by route, point and field."""
+    n_routes = len(raw_routes)
+    flat = _flatten_routes(raw_routes)
+    raw, _, unknown = row_columns(flat.conditions, _ROUTE_CONDITIONS, n_routes)
+    route_batch, route_errors = check_columns(raw, _ROUTE_CONDITIONS, n=n_routes, unknown=unknown)
+    ids = route_batch.ids
+    errors = flat.errors
+    for error in route_errors:
+        where = "properties." if flat.is_feature[error.index] and error.field != "id" else ""
+        errors.append(FieldError(field=f"routes[{error.index}].{where}{error.field}", reason=error.reason,
+                                 index=error.index, id=_record_id(ids, error.index)))
+    if flat.points:
+        raw, n, unknown = row_columns(flat.points, _ROUTE_POINTS, len(flat.points))
+        point_batch, point_errors = check_columns(raw, _ROUTE_POINTS, n=n, unknown=unknown)
+        for error in point_errors:
+            route = flat.point_route[error.index]
+            wire = None if error.field == "records" else error.field
+            errors.append(FieldError(field=flat.point_path(error.index, wire), reason=error.reason,
+                                     index=route, id=_record_id(ids, route)))
+        columns = point_batch.columns
+    else:
+        columns = {name: np.zeros(0) for name in ("time_unix_s", "latitude_deg", "longitude_deg")}
+        columns.update(stop=np.zeros(0, bool), gap=np.zeros(0, bool))
+    if errors:
+        errors.sort(key=lambda error: error.index)
+        raise invalid_records(errors, n_routes, "route")
+    points = routes.RoutePoints(route=np.asarray(flat.point_route, dtype=np.int64),
+                                time_unix_s=columns["time_unix_s"], latitude_deg=columns["latitude_deg"],
+                                longitude_deg=columns["longitude_deg"], stop=columns["stop"], gap=columns["gap"])
+    per_route = {name: route_batch.columns.get(name, np.full(n_routes, np.nan))
+                 for name in _ROUTE_CONDITIONS.fields if name != "id"}
+    return points, per_route, ids
 
 
 @blueprint.post(ROUTES_ROUTE)
 def route_doses() -> Response:
     negotiate(request)
-    body = request.get_json(silent=True)
-    if not isinstance(body, dict):
-        raise Problem(400, "malformed-body", "The request body cannot be read",
-                      "The body must be a JSON object with a `routes` array.")
-    try:
-        options = _ROUTE_OPTIONS.load(body)
-    except ValidationError as error:
-        raise Problem(422, "invalid-options", "The request options are invalid", "Nothing was computed.",
-                      [FieldError(field=str(k), reason=str(r[0] if isinstance(r, list) else r))
-                       for k, r in error.normalized_messages().items()]) from None
+    body = read_json_object(request.get_data(), request.mimetype, "a `routes` array")
+    options, option_errors = load_options(_ROUTE_OPTIONS, body)
+    if option_errors:
+        raise invalid_records(option_errors, 0)
     raw_routes = options["routes"]
-    if not isinstance(raw_routes, list) or not raw_routes or len(raw_routes) > current_app.config["UVDOSE_MAX_RECORDS"]:
-        raise _options_problem("routes", "must be a non-empty array of at most "
-                               f"{current_app.config['UVDOSE_MAX_RECORDS']} routes")
-    errors: list[FieldError] = []
-    parsed = [_route_arrays(i, r, errors) for i, r in enumerate(raw_routes)]
-    if errors:
-        raise Problem(422, "invalid-records", "The batch has invalid records", "Nothing was computed.", errors)
-    if sum(p[0].size for p in parsed) > MAX_ROUTE_POINTS:
+    max_routes = current_app.config["UVDOSE_MAX_RECORDS"]
+    if not isinstance(raw_routes, list) or not raw_routes or len(raw_routes) > max_routes:
+        raise _options_problem("routes", f"must be a non-empty array of at most {max_routes} routes")
+    if _route_count(raw_routes) > MAX_ROUTE_POINTS:
         raise Problem(413, "too-many-records", "Too many records in one request",
                       f"At most {MAX_ROUTE_POINTS} route points are accepted per request.",
                       extensions={"max_records": MAX_ROUTE_POINTS})
-    points = routes.RoutePoints(
-        route=np.repeat(np.arange(len(parsed)), [p[0].size for p in parsed]),
-        time_unix_s=np.concatenate([p[0] for p in parsed]), latitude_deg=np.concatenate([p[1] for p in parsed]),
-        longitude_deg=np.concatenate([p[2] for p in parsed]), stop=np.concatenate([p[3] for p in parsed]),
-        gap=np.concatenate([p[4] for p in parsed]))
-    ids = [p[5] for p in parsed]
-    per_route = {k: np.array([p[6][k] for p in parsed]) for k in parsed[0][6]}
+    points, per_route, ids = _read_routes(raw_routes)
     spectra = list(options.get("spectra") or DEFAULT_ROUTE_SPECTRA)
     step_s = float(options.get("step_s") or routes.DEFAULT_ROUTE_STEP_S)
     transmittance, label = _transmittance(options, default=DEFAULT_ROUTE_GLAZING)
     side = options.get("driver_side") or "left"
     cutoff = float(options.get("roof_cutoff_elevation_deg", routes.DEFAULT_ROOF_CUTOFF_ELEVATION_DEG))
     sky_view = float(options.get("cab_sky_view_factor", routes.DEFAULT_CAB_SKY_VIEW_FACTOR))
-    evaluate = _evaluator(spectra, transmittance, label, "routes")
+    evaluate = engine_gateway.current().dose_evaluator(spectra, transmittance, label, "routes")
     try:
         out = routes.route_doses(points, evaluate, per_route=per_route, driver_side=side, step_s=step_s,
                                  roof_cutoff_elevation_deg=cutoff, sky_view_factor=sky_view, spectra=spectra)
@@ -512,10 +591,10 @@ def route_doses() -> Response:
         index = int(message.split()[1].rstrip(",:")) if message.startswith("route ") else None
         raise Problem(422, "invalid-records", "The batch has invalid records", "Nothing was computed.",
                       [FieldError(field=f"routes[{index}]" if index is not None else "routes", reason=message,
-                                  index=index, id=ids[index] if index is not None and isinstance(ids[index], str) else None)]) from None
-    metrics.count_records(ROUTES_ROUTE, len(parsed))
+                                  index=index, id=_record_id(ids, index) if index is not None else None)]) from None
+    metrics.count_records(ROUTES_ROUTE, len(raw_routes))
     columns: dict[str, list] = {
-        "id": ids,
+        "id": ids.tolist(),
         "driving_s": out.driving_s.tolist(), "parked_s": out.parked_s.tolist(), "gap_s": out.gap_s.tolist(),
         "dose_j_m2": rows_from_columns({k: v.tolist() for k, v in out.dose_j_m2.items()}),
         "peak_uv_index": out.peak_uv_index.tolist(),

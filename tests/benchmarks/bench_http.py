@@ -15,7 +15,7 @@ Printed, all in one run:
    the ratio HTTP median / engine median. Target: at most 1.5 at 10 000 records.
 3. The parts of the overhead in this process at the largest size: JSON parsing,
    validation by the vectorised column checks against per-record marshmallow (the
-   choice batch_io makes), and response serialisation with orjson against json.
+   choice service.column_checks makes), and response serialisation with orjson against json.
 
 The machine is shared: read the ratios; the absolute figures move with the load.
 """
@@ -104,8 +104,9 @@ def main() -> None:
     import orjson
 
     from uvdose.models import engine
-    from uvdose.service import batch_io
-    from uvdose.service.routes_irradiance import IrradianceOptionsSchema, IrradianceRecordSchema, default_spectra
+    from uvdose.service import wire_formats
+    from uvdose.service.engine_gateway import default_spectra
+    from uvdose.service.irradiance_batch import IrradianceOptionsSchema, IrradianceRecordSchema
 
     schema, options = IrradianceRecordSchema(), IrradianceOptionsSchema()
     port = free_port()
@@ -118,7 +119,7 @@ def main() -> None:
             records = van_stops(n)
             rows_body = orjson.dumps({"records": records})
             columns_body = orjson.dumps({"columns": as_columns(records)})
-            batch = batch_io.read_batch_bytes(rows_body, "application/json", {}, record_schema=schema,
+            batch = wire_formats.read_batch_bytes(rows_body, "application/json", {}, record_schema=schema,
                                               options_schema=options, max_records=10**9).batch
             conditions = engine.Conditions.from_columns(batch.columns)
             engine.compute(conditions, spectra=default_spectra())  # warm tables
@@ -140,22 +141,23 @@ def main() -> None:
     print(f"\nparts of the overhead at {n} records (this process, median of {args.repeats}):")
     parse_s = statistics.median(timed(lambda: orjson.loads(body), args.repeats))
     parse_json_s = statistics.median(timed(lambda: json.loads(body), args.repeats))
-    vector_s = statistics.median(timed(lambda: batch_io.read_batch_bytes(
+    vector_s = statistics.median(timed(lambda: wire_formats.read_batch_bytes(
         body, "application/json", {}, record_schema=schema, options_schema=options, max_records=10**9),
         args.repeats))
     per_record_s = statistics.median(timed(lambda: schema.load(records, many=True), max(1, args.repeats // 3)))
     print(f"  parse JSON: orjson {parse_s:.4f} s, json {parse_json_s:.4f} s (json/orjson {parse_json_s / parse_s:.1f}x)")
     print(f"  validate: vectorised column checks (incl. parse) {vector_s:.4f} s, per-record marshmallow "
           f"{per_record_s:.4f} s (marshmallow/vectorised {per_record_s / vector_s:.1f}x)")
-    from uvdose.service.routes_irradiance import envelope, result_rows, run
+    from uvdose.service.engine_gateway import OFFLINE
+    from uvdose.service.irradiance_batch import compute, envelope, result_rows
 
-    batch = batch_io.read_batch_bytes(body, "application/json", {}, record_schema=schema, options_schema=options,
+    batch = wire_formats.read_batch_bytes(body, "application/json", {}, record_schema=schema, options_schema=options,
                                       max_records=10**9).batch
     spectra = default_spectra()
-    columns, _, _ = run(batch.columns, batch.ids, spectra, False)
+    columns, _, _ = compute(OFFLINE, batch.columns, batch.ids, spectra, False)
 
     def rows_payload():
-        return {**envelope(spectra, None), "results": result_rows(dict(columns), spectra, None)}
+        return {**envelope(spectra, None), "results": result_rows(dict(columns), None)}
 
     payload = rows_payload()
     build_s = statistics.median(timed(rows_payload, args.repeats))

@@ -138,6 +138,13 @@ def client(app, contract_client_for):
     return contract_client_for(app)
 
 
+def record_errors(response) -> dict:
+    """A 422 problem's errors as {(index, id, field): reason}."""
+    assert response.status_code == 422, response.get_data(as_text=True)
+    assert response.mimetype == "application/problem+json"
+    return {(e["index"], e["id"], e["field"]): e["reason"] for e in response.get_json()["errors"]}
+
+
 def free_loopback_port() -> int:
     with socket.socket() as s:
         s.bind(("127.0.0.1", 0))

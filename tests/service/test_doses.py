@@ -6,6 +6,8 @@ import urllib.request
 import numpy as np
 import pytest
 
+from tests.service.conftest import record_errors as _errors_of
+
 WINDOW = {"id": "crew-1", "start": "2026-06-10T08:00:00+02:00", "end": "2026-06-10T12:00:00+02:00",
           "lat": 44.31, "lon": 4.62, "ozone_du": 320}
 
@@ -144,7 +146,7 @@ def test_route_errors_name_route_and_field(client):
     assert r.status_code == 422 and (None, None, "driver_side") in _problem_fields(r)
     r = _post(client, "/v1/doses/routes", {"routes": [{"id": "x", "points": [dict(DELIVERY[0], time="09:00")]
                                                        + DELIVERY[1:]}]})
-    assert r.status_code == 422 and r.get_json()["errors"][0]["field"] == "routes[0].points"
+    assert r.status_code == 422 and r.get_json()["errors"][0]["field"] == "routes[0].points[0].time"
 
 
 @pytest.mark.redis
@@ -198,7 +200,7 @@ def test_route_typos_are_errors_not_ignored(client):
     assert r.status_code == 422 and r.get_json()["errors"][0]["field"] == "routes[0].cloud_facter"
     points = [dict(DELIVERY[0], latitude=1.0)] + DELIVERY[1:]
     r = _post(client, "/v1/doses/routes", {"routes": [{"id": "v", "points": points}]})
-    assert r.status_code == 422 and r.get_json()["errors"][0]["field"] == "routes[0].points.latitude"
+    assert r.status_code == 422 and r.get_json()["errors"][0]["field"] == "routes[0].points[0].latitude"
 
 
 def test_dose_samples_beyond_the_full_solve_bound_are_a_413_problem(make_app, contract_client_for):
@@ -209,3 +211,74 @@ def test_dose_samples_beyond_the_full_solve_bound_are_a_413_problem(make_app, co
     assert r.status_code == 413
     assert r.get_json()["type"] == "urn:uvdose:problem:too-many-full-solve-records"
     assert _post(client, "/v1/doses/windows", {"records": [WINDOW], "step_s": 1800}).status_code == 200
+
+
+def test_route_points_are_strict_numbers_and_errors_name_route_point_and_field(client):
+    # A text latitude and a boolean longitude were once coerced to numbers; both are errors.
+    typed = [dict(DELIVERY[0], lat="48.10"), dict(DELIVERY[1], lon=True), DELIVERY[2],
+             dict(DELIVERY[3], time="2026-07-15T10:45:00", stop="yes")]
+    r = _post(client, "/v1/doses/routes", {"routes": [{"id": "ok", "points": DELIVERY}, {"id": "typed", "points": typed}]})
+    assert _errors_of(r) == {
+        (1, "typed", "routes[1].points[0].lat"): "must be a number",
+        (1, "typed", "routes[1].points[1].lon"): "must be a number",
+        (1, "typed", "routes[1].points[3].time"): "must carry a UTC offset, e.g. 2026-05-20T12:00:00+02:00 or ...Z",
+        (1, "typed", "routes[1].points[3].stop"): "must be true or false",
+    }
+    assert r.get_json()["detail"].startswith("1 of 2 route(s)")
+    r = _post(client, "/v1/doses/routes", {"routes": [{"id": "v", "points": [DELIVERY[0], 7, *DELIVERY[1:]]}]})
+    assert _errors_of(r) == {(0, "v", "routes[0].points[1]"): "must be an object"}
+
+
+def test_geojson_route_errors_name_the_coordinate_and_the_property(client):
+    coordinates = [[p["lon"], p["lat"]] for p in DELIVERY]
+    coordinates[2] = [11.6, 91.0]
+    coordinates[3] = ["11.75", 48.05]
+    times = [p["time"] for p in DELIVERY]
+    times[1] = "2026-07-15 09:40"
+    feature = {"type": "Feature", "id": "van-geo",
+               "geometry": {"type": "LineString", "coordinates": coordinates},
+               "properties": {"times": times, "stops": [False, 1, False, False], "ozone_du": 20,
+                              "fleet": "north"}}  # other properties of a Feature are its own business
+    errors = _errors_of(_post(client, "/v1/doses/routes", {"routes": [feature]}))
+    expected = {"properties.ozone_du": "must be between 50 and 700",
+                "geometry.coordinates[2][1]": "must be between -90 and 90",
+                "geometry.coordinates[3][0]": "must be a number",
+                "properties.times[1]": "must carry a UTC offset, e.g. 2026-05-20T12:00:00+02:00 or ...Z",
+                "properties.stops[1]": "must be true or false"}
+    assert errors == {(0, "van-geo", f"routes[0].{path}"): reason for path, reason in expected.items()}
+    short = dict(feature, geometry={"type": "LineString", "coordinates": [[11.5, 48.1], [11.6]]},
+                 properties={"times": times[:2]})
+    assert _errors_of(_post(client, "/v1/doses/routes", {"routes": [short]})) == {
+        (0, "van-geo", "routes[0].geometry.coordinates[1]"): "must be a [longitude, latitude] position"}
+
+
+def test_route_conditions_are_the_record_fields_with_the_same_ranges(client):
+    # One declaration: a route's ozone_du and cloud_factor are refused as a record's are.
+    route = {"id": "r", "points": DELIVERY, "ozone_du": 20, "cloud_factor": 1.6, "surface_albedo": "snow"}
+    route_errors = _errors_of(_post(client, "/v1/doses/routes", {"routes": [route]}))
+    window = dict(WINDOW, id="r", ozone_du=20, cloud_factor=1.6, surface_albedo="snow")
+    window_errors = _errors_of(_post(client, "/v1/doses/windows", {"records": [window]}))
+    assert route_errors == {(0, "r", f"routes[0].{field}"): reason for (_, _, field), reason in window_errors.items()}
+    assert len(route_errors) == 3
+
+
+def test_daily_entries_are_records_named_by_their_position(client):
+    season = {"records": [{"lat": 52.1, "lon": 5.2}, {"lat": 52.2, "lon": 5.3}],
+              "first_day": "2026-05-01", "last_day": "2026-05-03"}
+    daily = {"field": [0, 1.0, 0, 1], "day": ["2026-05-01", "2026-05-02", "2026-5-3", "2026-05-03"],
+             "cloud_factor": [2, None, None, 0.5], "cloud_oktas": [None, None, None, 3], "ozone_du": [300, 300, 40, None]}
+    errors = _errors_of(_post(client, "/v1/doses/fields", dict(season, daily=daily)))
+    assert errors == {
+        (None, None, "daily.cloud_factor[0]"): "must be between 0 and 1.5",
+        (None, None, "daily.field[1]"): "must be a whole number",
+        (None, None, "daily.day[2]"): "must be an ISO 8601 date YYYY-MM-DD",
+        (None, None, "daily.ozone_du[2]"): "must be between 50 and 700",
+        (None, None, "daily.cloud_oktas[3]"): "give cloud_factor or cloud_oktas, not both",
+    }
+    r = _post(client, "/v1/doses/fields", dict(season, daily={"field": [0], "day": ["2026-05-01"], "cloud": [0.5]}))
+    assert _errors_of(r) == {(None, None, "daily.cloud"): "is not a column of the daily table"}
+    assert r.get_json()["type"] == "urn:uvdose:problem:invalid-options"
+    r = _post(client, "/v1/doses/fields", dict(season, daily={"field": [0, 1], "day": ["2026-05-01"]}))
+    assert _errors_of(r) == {(None, None, "daily"): "arrays differ in length: [1, 2]"}
+    r = _post(client, "/v1/doses/fields", dict(season, daily={"field": [0] * 7, "day": ["2026-05-01"] * 7}))
+    assert list(_errors_of(r)) == [(None, None, "daily")]  # more entries than fields × days: refused unread

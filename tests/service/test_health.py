@@ -1,7 +1,7 @@
 """Liveness, readiness and the problem documents for unknown URLs and methods."""
 import pytest
 
-from uvdose.service import routes_health
+from uvdose.service import engine_gateway
 
 
 def test_livez_answers_alive(client):
@@ -40,7 +40,7 @@ class _SilentCache:
 
 
 def test_readyz_stays_ready_but_degraded_when_the_cache_does_not_answer(app, contract_client_for, monkeypatch):
-    monkeypatch.setattr(routes_health, "engine_check", lambda: {"ok": True})
+    monkeypatch.setattr(engine_gateway, "engine_check", lambda: {"ok": True})
     app.extensions["uvdose_cache"] = _SilentCache()
     response = contract_client_for(app).get("/readyz")
     assert response.status_code == 200
@@ -69,8 +69,8 @@ def test_an_unexpected_exception_becomes_a_500_problem(app, contract_client_for,
     def explode():
         raise RuntimeError("disk on fire")
 
-    monkeypatch.setattr(routes_health, "cache_check", explode)
-    monkeypatch.setattr(routes_health, "engine_check", lambda: {"ok": True})
+    monkeypatch.setattr(engine_gateway, "cache_check", explode)
+    monkeypatch.setattr(engine_gateway, "engine_check", lambda: {"ok": True})
     response = contract_client_for(app).get("/readyz")
     assert response.status_code == 500
     body = response.get_json()

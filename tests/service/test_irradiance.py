@@ -8,9 +8,9 @@ import numpy as np
 import pytest
 
 from uvdose.models.action_spectra import weight_matrix
-from uvdose.service.batch_io import validate_columns
+from uvdose.service.column_checks import validate_columns
 from uvdose.service.problems import Problem
-from uvdose.service.routes_irradiance import IrradianceRecordSchema
+from uvdose.service.irradiance_batch import IrradianceRecordSchema
 
 URL = "/v1/irradiance"
 
@@ -316,7 +316,7 @@ def test_problem_types_tell_record_errors_from_option_errors(client):
 
 def test_the_vectorised_time_reader_agrees_with_python_fromisoformat():
     # Reference: CPython's datetime.fromisoformat (3.11) and datetime.timestamp().
-    from uvdose.service.batch_io import parse_offset_datetime, unix_seconds_of_canonical_times
+    from uvdose.service.time_text import parse_offset_datetime, unix_seconds_of_canonical_times
 
     rng = np.random.default_rng(11)
     texts = []
@@ -337,7 +337,7 @@ def test_the_vectorised_time_reader_agrees_with_python_fromisoformat():
         if was_read:
             assert value == expected, text
     # With the per-entry fallback for what it leaves, the column check reads every text as Python does.
-    from uvdose.service.batch_io import ColumnRule, _check_time
+    from uvdose.service.column_checks import ColumnRule, _check_time
 
     column, bad = _check_time(ColumnRule(wire="time", column="t", kind="time", required=True), texts, len(texts))
     for text, value, rejected in zip(texts, column, bad):

@@ -40,8 +40,9 @@ def test_the_contract_client_rejects_an_undocumented_body(app, contract_client_f
 
 def test_openapi_states_the_ranges_the_record_schema_enforces(openapi_spec):
     # One source of truth: the marshmallow declarations; openapi.yaml must say the same.
-    from uvdose.service.batch_io import EARLIEST_TIME, TIME_BEFORE, column_rules
-    from uvdose.service.routes_irradiance import IrradianceRecordSchema
+    from uvdose.service.column_checks import column_rules
+    from uvdose.service.record_fields import EARLIEST_TIME, TIME_BEFORE
+    from uvdose.service.irradiance_batch import IrradianceRecordSchema
 
     record = openapi_spec["components"]["schemas"]["IrradianceRecord"]
     rules = {rule.wire: rule for rule in column_rules(IrradianceRecordSchema())}
@@ -68,7 +69,7 @@ def test_openapi_lists_the_action_spectra_the_models_define(openapi_spec):
 
     from marshmallow import validate
 
-    from uvdose.service.routes_irradiance import IrradianceOptionsSchema
+    from uvdose.service.irradiance_batch import IrradianceOptionsSchema
 
     schemas = openapi_spec["components"]["schemas"]
     assert set(schemas["SpectrumName"]["enum"]) == set(ACTION_SPECTRA)

@@ -8,6 +8,8 @@ import pytest
 from uvdose.models.ozone_climatology import climatological_ozone_du, day_of_year_from_unix
 from uvdose.models.ozone_grids import OzoneResolver
 
+from tests.service.conftest import record_errors as _errors
+
 ROUTE = "/v1/ozone"
 
 
@@ -113,12 +115,6 @@ def test_csv_in_csv_out(client):
     assert len(lines) == 3
 
 
-def _errors(response):
-    assert response.status_code == 422, response.get_data(as_text=True)
-    assert response.mimetype == "application/problem+json"
-    return {(e["index"], e["id"], e["field"]): e["reason"] for e in response.get_json()["errors"]}
-
-
 def test_bad_records_name_index_id_and_field(client):
     records = [
         {"id": "ok", "lat": 10.0, "lon": 10.0, "date": "2026-01-01"},
@@ -200,3 +196,13 @@ def test_irradiance_endpoint_reports_the_same_ozone(make_app, contract_client_fo
     used = irradiance.get_json()["results"]
     assert [r["ozone_du"] for r in used] == [r["ozone_du"] for r in ozone]
     assert [r["ozone_source"] for r in used] == [r["ozone_source"] for r in ozone]
+
+
+def test_time_and_date_columns_may_mix_records(client):
+    columns = {"id": ["a", "b", "c"], "lat": [10.0, 10.0, 10.0], "lon": [0.0, 0.0, 0.0],
+               "time": [None, "2026-03-01T06:00:00-03:00", None], "date": ["2026-03-01", None, None]}
+    errors = _errors(client.post(ROUTE, json={"columns": columns}))
+    assert errors == {(2, "c", "date"): "give time or date, exactly one"}
+    columns["date"][2] = "2026-03-02"
+    body = client.post(ROUTE, json={"columns": columns}).get_json()
+    assert body["columns"]["time"] == ["2026-03-01T12:00:00Z", "2026-03-01T09:00:00Z", "2026-03-02T12:00:00Z"]

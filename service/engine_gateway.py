@@ -1,0 +1,193 @@
+"""The one way from the service to the engine: the app's ozone resolver, its cache, the
+full-solve bound, and every engine call, with the cache context that keys its results.
+
+``init_app(app)`` attaches the resolver (``app.extensions["uvdose_ozone"]``; operator
+grids from config ``UVDOSE_OZONE_GRIDS``) and the grid-cell cache
+(``app.extensions["uvdose_cache"]``), and loads the engine's precomputed table, so that a
+bad grid file or table fails the start, not a request. In a request, :func:`current`
+gives the :class:`Gateway` of the app; the offline ``uvdose batch`` uses :data:`OFFLINE`
+(the engine's default resolver, no cache, no bound). Blueprints, the catalogue and the
+CLI reach the engine only through here.
+
+A cache context holds every request-wide option that changes a result (spectra, spectral
+output, glazing) and the resolver's fingerprint, since a changed grid file changes
+results without a new ``MODEL_VERSION``; the cache adds ``MODEL_VERSION`` itself.
+"""
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass
+from typing import Any, Callable, Mapping, Sequence
+
+import numpy as np
+from flask import Flask, current_app
+
+from uvdose.models import clear_sky, dose
+from uvdose.models.ozone_grids import GRIDS_ENV_VAR, OzoneResolver, default_resolver
+from uvdose.service import cache
+
+OZONE_EXTENSION = "uvdose_ozone"
+CACHE_EXTENSION = "uvdose_cache"
+GRIDS_CONFIG_KEY = "UVDOSE_OZONE_GRIDS"
+
+Columns = Mapping[str, np.ndarray]
+
+
+def init_app(app: Flask) -> None:
+    """Attach the ozone resolver and the cache to ``app`` and load the engine's tables now
+    (with gunicorn's preload, once before the workers fork), not on the first request."""
+    if OZONE_EXTENSION not in app.extensions:
+        app.extensions[OZONE_EXTENSION] = resolver_for(app)
+    cache.init_app(app)
+    engine_check()
+
+
+def resolver_for(app: Flask) -> OzoneResolver:
+    """The app's resolver: grids from config ``UVDOSE_OZONE_GRIDS`` if set, else the process default.
+
+    The process default (``models.ozone_grids.default_resolver``) reads the
+    ``UVDOSE_OZONE_GRIDS`` environment variable once per process.
+    """
+    if app.config.get(GRIDS_CONFIG_KEY) is not None:
+        return OzoneResolver.from_environment({GRIDS_ENV_VAR: app.config[GRIDS_CONFIG_KEY]})
+    return default_resolver()
+
+
+@dataclass(frozen=True)
+class Gateway:
+    """The engine as one caller sees it.
+
+    ``ozone_resolver`` ``None`` means the engine's default; ``cache`` ``None`` computes every
+    record; ``max_full_solve_records`` bounds the records one call (one request) may send
+    to the full solve, ``None`` for no bound.
+    """
+
+    ozone_resolver: OzoneResolver | None = None
+    cache: Any = None
+    max_full_solve_records: int | None = None
+
+    @property
+    def ozone_fingerprint(self) -> str:
+        return getattr(self.ozone_resolver, "fingerprint", "default")
+
+    def _budget(self) -> clear_sky.FullSolveBudget | None:
+        limit = self.max_full_solve_records
+        return None if limit is None else clear_sky.FullSolveBudget(limit)
+
+    def _through_cache(self, columns: Columns, compute: Callable, context: str) -> dict[str, np.ndarray]:
+        if self.cache is None:
+            return compute(columns)
+        return self.cache.compute_through(columns, compute, context)
+
+    def irradiance(self, columns: Columns, spectra: Sequence[str], include_spectrum: bool) -> dict[str, np.ndarray]:
+        """``models.engine.compute`` on validated condition columns; result columns
+        (``EngineResult.as_columns`` names), through the cache."""
+        from uvdose.models import engine
+
+        budget = self._budget()
+
+        def compute(part: Columns) -> dict[str, np.ndarray]:
+            conditions = engine.Conditions.from_columns(part)
+            return engine.compute(conditions, spectra=spectra, include_spectrum=include_spectrum,
+                                  ozone_resolver=self.ozone_resolver, full_solve_budget=budget).as_columns()
+
+        context = (f"irradiance;spectra={','.join(spectra)};spectrum={int(include_spectrum)};"
+                   f"ozone={self.ozone_fingerprint}")
+        return self._through_cache(columns, compute, context)
+
+    def dose_evaluator(self, spectra: Sequence[str], transmittance: np.ndarray | None, glazing: str,
+                       kind: str) -> dose.Evaluator:
+        """The evaluator the dose and route integrations of models/ call: the engine
+        behind ``transmittance`` (``glazing`` labels it in the cache context), through the
+        cache, with one full-solve bound over every call; ``kind`` names the endpoint."""
+        compute = dose.engine_evaluator(spectra, transmittance=transmittance, ozone_resolver=self.ozone_resolver,
+                                        full_solve_budget=self._budget())
+        context = (f"doses:{kind};spectra={','.join(spectra)};glazing={glazing};"
+                   f"ozone={self.ozone_fingerprint}")
+
+        def evaluate(columns: Columns) -> dict[str, np.ndarray]:
+            # Samples are built from validated input, so a ValueError inside the engine is
+            # our fault, not the client's: keep it out of the 422 path of the endpoints.
+            try:
+                return self._through_cache(columns, compute, context)
+            except ValueError as error:
+                raise RuntimeError(f"engine failed on dose samples: {error}") from error
+
+        return evaluate
+
+    def _resolver(self) -> OzoneResolver:
+        return self.ozone_resolver if self.ozone_resolver is not None else default_resolver()
+
+    def ozone(self, latitude_deg: np.ndarray, longitude_deg: np.ndarray,
+              time_unix_s: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """(total ozone DU, source) the engine would use for records that give none."""
+        return self._resolver().resolve(latitude_deg, longitude_deg, time_unix_s, None)
+
+    def ozone_grids(self) -> list[dict]:
+        """The operator grids the resolver consults, in order."""
+        return self._resolver().describe()
+
+
+OFFLINE = Gateway()
+"""The offline ``uvdose batch``: the engine's default resolver, no cache, no full-solve bound."""
+
+
+def current() -> Gateway:
+    """The current app's gateway (inside a request or an app context)."""
+    app = current_app
+    return Gateway(app.extensions.get(OZONE_EXTENSION), app.extensions.get(CACHE_EXTENSION),
+                   app.config["UVDOSE_MAX_FULL_SOLVE_RECORDS"])
+
+
+def default_spectra() -> list[str]:
+    """The spectra an irradiance answer weights by when the request names none."""
+    from uvdose.models.engine import DEFAULT_SPECTRA
+
+    return list(DEFAULT_SPECTRA)
+
+
+# ---------------------------------------------------------------------------------------
+# Readiness
+
+
+def engine_check() -> dict[str, Any]:
+    """Import the engine and load its precomputed irradiance table when there is one.
+
+    A table file that is not there yet is reported but does not make the engine unready
+    (``models.clear_sky`` then solves every record directly, slower); a table that is
+    there and fails to load does.
+    """
+    started = time.perf_counter()
+    try:
+        from uvdose.models import engine, irradiance_table  # noqa: F401  (importable is part of ready)
+
+        try:
+            irradiance_table.load_table()  # memoised: loads once per process
+            table = "loaded"
+        except FileNotFoundError:
+            table = "missing (direct solve)"
+    except Exception as error:  # readiness must report, not raise
+        return {"ok": False, "error": f"{type(error).__name__}: {error}"}
+    return {"ok": True, "irradiance_table": table,
+            "seconds": round(time.perf_counter() - started, 4)}
+
+
+def cache_check() -> dict[str, Any]:
+    """Name the current app's cache backend and say whether it answers (``None``: no backend to ask)."""
+    attached = current_app.extensions.get(CACHE_EXTENSION)
+    if attached is None:
+        return {"backend": "none", "answers": None}
+    try:
+        if hasattr(attached, "status"):
+            state = dict(attached.status())
+        else:
+            state = {"backend": type(attached).__name__, "answers": bool(attached.ping())}
+    except Exception as error:  # readiness must report, not raise
+        return {"backend": str(getattr(attached, "backend", type(attached).__name__)), "answers": False,
+                "error": f"{type(error).__name__}: {error}"}
+    state["backend"] = str(state.get("backend", type(attached).__name__))
+    if state["backend"] == "off":
+        state["answers"] = None
+    else:
+        state["answers"] = bool(state.get("answers"))
+    return state

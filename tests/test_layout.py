@@ -1,0 +1,88 @@
+"""The layout the code promises (DEVELOPERS.md): blueprints never import each other, and
+the service's modules import one another without a circle.
+
+Imports are read from the source (every ``import``/``from … import`` anywhere in a module,
+function-level ones included, and ``importlib.import_module("uvdose.…")`` calls), so a
+lazy import inside a function cannot hide a dependency.
+"""
+from __future__ import annotations
+
+import ast
+from pathlib import Path
+
+REPO = Path(__file__).resolve().parents[1]
+
+
+def imported_modules(path: Path, package: str) -> set[str]:
+    """Modules of ``package`` (dotted, e.g. ``uvdose.service``) that the file at ``path`` imports."""
+    tree = ast.parse(path.read_text(encoding="utf-8"))
+    names: set[str] = set()
+    for node in ast.walk(tree):
+        if isinstance(node, ast.Import):
+            names.update(alias.name for alias in node.names)
+        elif isinstance(node, ast.ImportFrom) and node.module and node.level == 0:
+            names.add(node.module)
+            names.update(f"{node.module}.{alias.name}" for alias in node.names)
+        elif (isinstance(node, ast.Call) and getattr(node.func, "attr", getattr(node.func, "id", None)) == "import_module"
+              and node.args and isinstance(node.args[0], ast.Constant) and isinstance(node.args[0].value, str)):
+            names.add(node.args[0].value)
+    modules = {path.stem for path in path.parent.glob("*.py")} | \
+              {folder.name for folder in path.parent.iterdir() if (folder / "__init__.py").is_file()}
+    found = set()
+    for name in names:
+        if name.startswith(package + "."):
+            first = name[len(package) + 1:].split(".")[0]
+            if first in modules and first != "__init__":
+                found.add(first)
+    return found
+
+
+def import_graph(folder: Path, package: str) -> dict[str, set[str]]:
+    """Module name -> the package's modules it imports, for every module directly in ``folder``
+    (a subpackage counts as one module, its own files' imports merged)."""
+    graph: dict[str, set[str]] = {}
+    for path in sorted(folder.glob("*.py")):
+        if path.stem != "__init__":
+            graph[path.stem] = imported_modules(path, package) - {path.stem}
+    for sub in sorted(p for p in folder.iterdir() if (p / "__init__.py").is_file()):
+        graph[sub.name] = set().union(*(imported_modules(f, package) - {sub.name}
+                                        for f in sub.rglob("*.py")))
+    return graph
+
+
+def cycles(graph: dict[str, set[str]]) -> list[list[str]]:
+    """Every import circle in ``graph`` (one list of modules per circle found)."""
+    found, state = [], {}
+
+    def visit(node: str, trail: list[str]) -> None:
+        state[node] = "open"
+        for target in sorted(graph.get(node, ())):
+            if state.get(target) == "open":
+                found.append(trail[trail.index(target):] + [target])
+            elif target not in state:
+                visit(target, trail + [target])
+        state[node] = "done"
+
+    for node in sorted(graph):
+        if node not in state:
+            visit(node, [node])
+    return found
+
+
+def test_blueprints_import_no_other_blueprint():
+    graph = import_graph(REPO / "service", "uvdose.service")
+    blueprints = {name for name in graph if name.startswith("routes_")}
+    assert len(blueprints) >= 5
+    crossing = {name: sorted(graph[name] & blueprints) for name in blueprints if graph[name] & blueprints}
+    assert crossing == {}
+
+
+def test_the_service_has_no_import_circle():
+    graph = import_graph(REPO / "service", "uvdose.service")
+    assert graph["app"] >= {"engine_gateway", "routes_irradiance"}  # the reader sees every kind of import
+    assert cycles(graph) == []
+
+
+def test_the_circle_finder_finds_a_circle():
+    assert cycles({"a": {"b"}, "b": {"c"}, "c": {"a"}, "d": {"a"}}) == [["a", "b", "c", "a"]]
+    assert cycles({"a": {"b"}, "b": set()}) == []
