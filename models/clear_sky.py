@@ -7,7 +7,7 @@ Composition (``spectral_irradiance_direct_solve``)
     2. Pseudo-spherical direct-beam air mass per layer (``models.atmosphere.beam_air_mass``).
     3. Multiple scattering by the multi-layer four-stream discrete-ordinates solver
        (``models.four_stream.surface_irradiance``; Rayleigh + Henyey-Greenstein phase
-       function, shares from :func:`rayleigh_scattering_fraction`) over a Lambertian
+       function, shares from ``models.optics.rayleigh_scattering_fraction``) over a Lambertian
        surface of the given UV albedo, giving direct and diffuse horizontal flux per unit
        extraterrestrial irradiance.
     4. Multiplied by the ASTM G173-03 extraterrestrial spectrum at 1 AU
@@ -30,7 +30,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from uvdose.models import atmosphere, optics
+from uvdose.models import atmosphere, irradiance_table, optics
+from uvdose.models.four_stream import surface_irradiance
 from uvdose.models.spectral_grid import WAVELENGTH_NM, extraterrestrial_spectrum_w_m2_nm
 
 METHODS = ("auto", "direct", "table")
@@ -63,20 +64,6 @@ def _as_record_arrays(solar_zenith_deg, *values):
     return (zenith, *(np.broadcast_to(np.asarray(v, dtype=float), zenith.shape) for v in values))
 
 
-def rayleigh_scattering_fraction(layer, pressure_hpa) -> np.ndarray:
-    """Share of each layer's scattering by molecules, (N, L, W), for ``layer`` =
-    ``models.optics.layer_optics(...)`` of records at surface pressure ``pressure_hpa`` (N,):
-    the Rayleigh optical depth of the layer (Bodhaine et al. 1999, as in ``models.optics``)
-    over its total scattering optical depth (1 where nothing scatters)."""
-    layers = atmosphere.standard_layers()
-    rayleigh = (atmosphere.pressure_scale(np.atleast_1d(pressure_hpa))[:, None, None]
-                * (layers.air_column_fraction[:, None]
-                   * optics.rayleigh_optical_depth(WAVELENGTH_NM))[None])
-    scattering = layer.tau * layer.ssa
-    return np.where(scattering > 0, np.minimum(rayleigh / np.where(scattering > 0, scattering, 1.0),
-                                               1.0), 1.0)
-
-
 def spectral_irradiance_direct_solve(solar_zenith_deg, earth_sun_distance_au, ozone_du,
                                      pressure_hpa, surface_albedo, aod_550, angstrom_exponent,
                                      single_scattering_albedo, asymmetry_factor) -> ClearSkySpectrum:
@@ -85,8 +72,6 @@ def spectral_irradiance_direct_solve(solar_zenith_deg, earth_sun_distance_au, oz
     See the module docstring for the method and units. Every argument is (N,) or a scalar;
     ``surface_albedo`` may also be (N, W).
     """
-    from uvdose.models.four_stream import surface_irradiance
-
     zenith, distance, ozone, pressure, aod, alpha, ssa, g = _as_record_arrays(
         solar_zenith_deg, earth_sun_distance_au, ozone_du, pressure_hpa, aod_550,
         angstrom_exponent, single_scattering_albedo, asymmetry_factor)
@@ -106,7 +91,7 @@ def spectral_irradiance_direct_solve(solar_zenith_deg, earth_sun_distance_au, oz
         direct_rel, diffuse_rel = surface_irradiance(
             layer.tau, layer.ssa, layer.g, np.cos(np.deg2rad(zenith[rows])), albedo[rows],
             beam_air_mass=atmosphere.beam_air_mass(zenith[rows]),
-            rayleigh_scattering_fraction=rayleigh_scattering_fraction(layer, pressure[rows]))
+            rayleigh_scattering_fraction=optics.rayleigh_scattering_fraction(layer, pressure[rows]))
         scale = top_of_atmosphere[None, :] / distance[rows, None] ** 2
         direct[rows] = direct_rel * scale
         diffuse[rows] = diffuse_rel * scale
@@ -162,8 +147,6 @@ def spectral_irradiance(solar_zenith_deg, earth_sun_distance_au, ozone_du, press
     if method == "direct":
         return spectral_irradiance_direct_solve(*arguments)
     if method in ("auto", "table"):
-        from uvdose.models import irradiance_table
-
         fallback = None
         if method == "auto":
             def fallback(*uncovered):

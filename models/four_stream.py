@@ -27,7 +27,7 @@ Methods (each implemented below, where it is used):
   Catchings 1973, *Appl. Opt.* 12:314; Liou 2002, *An Introduction to Atmospheric
   Radiation*, sec. 6.5).
 - Lambertian surface through the spherical albedo ``S``: ``global(a) = global(0) / (1 - a S)``
-  (Tanre et al. 1979; ``models.two_stream.apply_surface_albedo``); exact here too, since
+  (Tanre et al. 1979; ``models.solver_parts.apply_surface_albedo``); exact here too, since
   the light a Lambertian surface reflects is isotropic.
 - Pseudo-spherical beam: attenuated along a per-layer air mass, diffuse source
   plane-parallel with ``mu0`` (Dahlback & Stamnes 1991, *Planet. Space Sci.* 39:671).
@@ -38,10 +38,10 @@ no depolarisation, Chandrasekhar 1950 sec. 18) and Henyey-Greenstein aerosol (mo
 ``g_a**l``, Henyey & Greenstein 1941, *Astrophys. J.* 93:70) whose asymmetry ``g_a`` makes
 the layer's asymmetry factor ``g``.
 
-Numerical safeguards: the scaled single scattering albedo is capped at ``1 - 1e-9`` (as in
-``models.two_stream``), and where the beam rate ``m`` comes within a relative 1e-4 of an
-eigenvalue ``k`` the particular solution is taken at ``k (1 +- 1e-4)``. All exponentials
-have non-positive arguments.
+Numerical safeguards (``models.solver_parts``, shared with ``models.two_stream``): the
+scaled single scattering albedo is capped at ``1 - 1e-9``, and where the beam rate ``m``
+comes within a relative 1e-4 of an eigenvalue ``k`` the particular solution is taken at
+``k (1 +- 1e-4)``. All exponentials have non-positive arguments.
 
 Known limitations (measured against 16-stream DISORT, tests/models/test_four_stream.py):
 four streams resolve the low-sun skylight to within 2.3 % for weighted irradiances up to
@@ -57,9 +57,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from uvdose.models.two_stream import (EIGENVALUE_GUARD, MAX_SCALED_SINGLE_SCATTERING_ALBEDO,
-                               TransferComponents, _beam_geometry, _check_inputs,
-                               apply_surface_albedo)
+from uvdose.models.solver_parts import (TransferComponents, apply_surface_albedo, beam_geometry,
+                                        checked_layer_inputs, delta_scaled, separated_beam_rate)
 
 RAYLEIGH_PHASE_MOMENT_2 = 0.1
 """Second Legendre moment of the Rayleigh phase function (3/4)(1 + cos^2) (Chandrasekhar
@@ -179,11 +178,7 @@ def _layer_matrices(tau_s, w, moments_s, mu0, attenuation):
     # Particular solution for the beam: (P Q - m^2) s = P q+ + m q-, d = P^-1 (q- + m s).
     m = np.broadcast_to(attenuation, tau_s.shape)
     for mode in range(2):
-        gap = k[mode] - m
-        too_close = np.abs(gap) < EIGENVALUE_GUARD * m
-        if np.any(too_close):
-            shift = np.where(gap > 0, -EIGENVALUE_GUARD, EIGENVALUE_GUARD)
-            m = np.where(too_close, k[mode] * (1.0 + shift), m)
+        m = separated_beam_rate(m, k[mode])
     weighted = coefficient * _legendre(mu0)                       # (N, W, 4)
     beam_down = np.moveaxis(weighted @ p_mu.T, -1, 0)             # p(mu_i, mu0)
     beam_up = np.moveaxis((weighted * parity) @ p_mu.T, -1, 0)    # p(-mu_i, mu0)
@@ -214,17 +209,14 @@ def transfer_components(tau, ssa, g, mu0, beam_air_mass=None,
     Parameters as for :func:`surface_irradiance` (without the albedo). Records with
     ``mu0 <= 0`` get exact zeros for the fluxes.
     """
-    tau, ssa, g, mu0, beam_air_mass = _check_inputs(tau, ssa, g, mu0, beam_air_mass)
+    tau, ssa, g, mu0, beam_air_mass = checked_layer_inputs(tau, ssa, g, mu0, beam_air_mass)
     n_records, n_layers, n_wavelengths = tau.shape
     moments = mixture_phase_moments(g, rayleigh_scattering_fraction)
-    sun_up, mu_sun, air_mass = _beam_geometry(mu0, beam_air_mass, n_layers)
+    sun_up, mu_sun, air_mass = beam_geometry(mu0, beam_air_mass, n_layers)
 
     # Delta-M (Wiscombe 1977): f = chi_4, chi'_l = (chi_l - f) / (1 - f).
     forward_fraction = moments[..., 3]
-    scattered_forward = ssa * forward_fraction
-    tau_s = (1.0 - scattered_forward) * tau
-    w = np.minimum(ssa * (1.0 - forward_fraction) / (1.0 - scattered_forward),
-                   MAX_SCALED_SINGLE_SCATTERING_ALBEDO)
+    tau_s, w = delta_scaled(tau, ssa, forward_fraction)
     scaled = np.empty(tau.shape + (4,))
     scaled[..., 0] = 1.0
     scaled[..., 1:] = ((moments[..., :3] - forward_fraction[..., None])

@@ -19,7 +19,7 @@ per wavelength of ``models.spectral_grid.WAVELENGTH_NM``:
 
 Any Lambertian surface albedo a, grey or spectral, is then applied analytically with
 ``global(a) = global(0) / (1 - a S)`` (Tanré et al. 1979, *Appl. Opt.* 18:3587; 6S,
-Vermote et al. 1997), implemented once in ``models.two_stream.apply_surface_albedo``.
+Vermote et al. 1997), implemented once in ``models.solver_parts.apply_surface_albedo``.
 In the adding scheme of the solver (``models.four_stream``) that relation is exact, since a
 Lambertian surface reflects isotropically, so the table adds
 interpolation error only.
@@ -56,9 +56,8 @@ import scipy.sparse
 
 from uvdose.models import MODEL_VERSION, atmosphere, optics
 from uvdose.models.spectral_grid import WAVELENGTH_NM, extraterrestrial_spectrum_w_m2_nm
-from uvdose.models.clear_sky import rayleigh_scattering_fraction
 from uvdose.models.four_stream import transfer_components
-from uvdose.models.two_stream import apply_surface_albedo
+from uvdose.models.solver_parts import apply_surface_albedo
 
 TABLE_FILE = Path(__file__).with_name("data") / "irradiance_table.npz"
 
@@ -118,7 +117,7 @@ def fingerprint() -> str:
     air_mass = atmosphere.beam_air_mass(zenith)
     parts = transfer_components(layer.tau, layer.ssa, layer.g, np.cos(np.deg2rad(zenith)),
                                 beam_air_mass=air_mass,
-                                rayleigh_scattering_fraction=rayleigh_scattering_fraction(
+                                rayleigh_scattering_fraction=optics.rayleigh_scattering_fraction(
                                     layer, np.full(2, 1000.0)))
     for array in (layer.tau, layer.ssa, layer.g, air_mass, parts.direct_horizontal,
                   parts.diffuse_down_black_surface, parts.spherical_albedo):
@@ -170,7 +169,7 @@ def compute_table() -> dict[str, np.ndarray]:
             parts = transfer_components(
                 layer.tau, layer.ssa, layer.g, np.tile(mu0, n_a),
                 beam_air_mass=np.tile(air_mass, (n_a, 1)),
-                rayleigh_scattering_fraction=rayleigh_scattering_fraction(
+                rayleigh_scattering_fraction=optics.rayleigh_scattering_fraction(
                     layer, np.full(aod.size, pressure_hpa)))
             direct = parts.direct_horizontal.reshape(n_a, n_z, n_w) / mu0[None, :, None]
             global_black = (parts.direct_horizontal

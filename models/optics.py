@@ -180,3 +180,37 @@ def layer_optics(ozone_du, pressure_hpa, aod_550, angstrom_exponent,
     g = np.multiply(scattering_aerosol, g_aerosol[:, None, None], out=scattering_aerosol)
     g /= scattering
     return LayerOptics(tau=tau, ssa=ssa, g=g)
+
+
+def rayleigh_scattering_fraction(layer: LayerOptics, pressure_hpa) -> np.ndarray:
+    """Share of each layer's scattering that is molecular (Rayleigh), (N, L, W).
+
+    The four-stream solver (``models.four_stream``) mixes a Rayleigh and a
+    Henyey-Greenstein phase function in each layer in this proportion.
+
+    Parameters
+    ----------
+    layer : LayerOptics
+        ``layer_optics(...)`` of N records on the standard layers.
+    pressure_hpa : array (N,)
+        Surface pressure of those records, hPa.
+
+    Returns
+    -------
+    numpy.ndarray (N, L, W)
+        The layer's Rayleigh optical depth (:func:`rayleigh_optical_depth`, spread by
+        air column as in :func:`layer_optics`) over its total scattering optical depth
+        ``tau * ssa``; 1 where nothing scatters, at most 1.
+
+    References
+    ----------
+    .. [1] Bodhaine, B. A., Wood, N. B., Dutton, E. G. and Slusser, J. R. (1999). On
+       Rayleigh optical depth calculations. J. Atmos. Oceanic Technol. 16, 1854-1861.
+    """
+    layers = standard_layers()
+    rayleigh = (pressure_scale(np.atleast_1d(pressure_hpa))[:, None, None]
+                * (layers.air_column_fraction[:, None]
+                   * rayleigh_optical_depth(WAVELENGTH_NM))[None])
+    scattering = layer.tau * layer.ssa
+    return np.where(scattering > 0, np.minimum(rayleigh / np.where(scattering > 0, scattering, 1.0),
+                                               1.0), 1.0)

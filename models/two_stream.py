@@ -38,7 +38,8 @@ Numerical safeguards (documented because they change numbers, if only slightly):
 
 ``models.four_stream`` holds a four-stream discrete-ordinates solver with the same array
 contract that meets the low-sun target below (tests/models/test_four_stream.py); the
-engine still uses this module.
+engine uses that one. The parts both share (input checks, beam geometry, delta scaling,
+the eigenvalue guard, the surface-albedo relation) live in ``models.solver_parts``.
 
 Known limitations (measured against 16-stream DISORT, see tests/models/test_two_stream.py):
 
@@ -67,80 +68,10 @@ stays within a few degrees of the sun, is counted with the beam), as DISORT's
 """
 from __future__ import annotations
 
-from dataclasses import dataclass
-
 import numpy as np
 
-MAX_SCALED_SINGLE_SCATTERING_ALBEDO = 1.0 - 1e-9
-"""Cap on the delta-scaled single scattering albedo (see module docstring)."""
-
-EIGENVALUE_GUARD = 1e-4
-"""Smallest relative distance kept between beam attenuation rate and eigenvalue."""
-
-
-@dataclass(frozen=True)
-class TransferComponents:
-    """Surface fluxes of an atmosphere over a black surface, plus its spherical albedo.
-
-    Each ``(N, W)``, per unit extraterrestrial irradiance normal to the beam.
-    """
-
-    direct_horizontal: np.ndarray
-    """Direct (delta-scaled) beam on a horizontal surface: ``mu0 * exp(-sum tau m)``."""
-    diffuse_down_black_surface: np.ndarray
-    """Downward diffuse flux at the surface when the surface absorbs everything."""
-    spherical_albedo: np.ndarray
-    """Reflectance of the atmosphere for isotropic (diffuse) light from below."""
-    reflected_black_surface: np.ndarray
-    """Upward flux leaving the top of the atmosphere over a black surface."""
-    transmittance_up: np.ndarray
-    """Fraction of diffuse light leaving the surface upward that escapes at the top."""
-
-
-def _check_inputs(tau, ssa, g, mu0, beam_air_mass):
-    tau = np.asarray(tau, dtype=np.float64)
-    ssa = np.asarray(ssa, dtype=np.float64)
-    g = np.asarray(g, dtype=np.float64)
-    mu0 = np.asarray(mu0, dtype=np.float64)
-    if tau.ndim != 3:
-        raise ValueError(f"tau must have shape (N, L, W), got {tau.shape}")
-    if ssa.shape != tau.shape or g.shape != tau.shape:
-        raise ValueError(
-            "tau, ssa and g must share one shape (N, L, W); "
-            f"got {tau.shape}, {ssa.shape}, {g.shape}"
-        )
-    n_records, n_layers, _ = tau.shape
-    if mu0.shape != (n_records,):
-        raise ValueError(f"mu0 must have shape ({n_records},), got {mu0.shape}")
-    if beam_air_mass is not None:
-        beam_air_mass = np.asarray(beam_air_mass, dtype=np.float64)
-        if beam_air_mass.shape != (n_records, n_layers):
-            raise ValueError(
-                f"beam_air_mass must have shape ({n_records}, {n_layers}), "
-                f"got {beam_air_mass.shape}"
-            )
-    if np.any(tau < 0) or np.any(~np.isfinite(tau)):
-        raise ValueError("tau must be finite and non-negative")
-    if np.any((ssa < 0) | (ssa > 1)):
-        raise ValueError("ssa must lie in [0, 1]")
-    if np.any((g <= -1) | (g >= 1)):
-        raise ValueError("g must lie in (-1, 1)")
-    return tau, ssa, g, mu0, beam_air_mass
-
-
-def _beam_geometry(mu0, beam_air_mass, n_layers):
-    """``(sun_up, mu_sun, air_mass)``: which records have the sun up, ``mu0`` with 1 in
-    place of the others, and the per-layer beam air mass (N, L) (default ``1/mu0``; 1 where
-    the sun is down), checked to be finite and >= 1 where the sun is up."""
-    sun_up = mu0 > 0
-    mu_sun = np.where(sun_up, mu0, 1.0)
-    if beam_air_mass is None:
-        return sun_up, mu_sun, np.broadcast_to((1.0 / mu_sun)[:, None], (mu0.size, n_layers))
-    air_mass = np.where(sun_up[:, None], beam_air_mass, 1.0)
-    if np.any(~np.isfinite(air_mass) | (air_mass < 1.0 - 1e-9)):
-        raise ValueError("beam_air_mass must be finite and >= 1 where the sun is up")
-    return sun_up, mu_sun, air_mass
-
+from uvdose.models.solver_parts import (TransferComponents, apply_surface_albedo, beam_geometry,
+                                        checked_layer_inputs, delta_scaled, separated_beam_rate)
 
 def _delta_eddington_layer(tau, ssa, g, mu0, attenuation):
     """Reflectance/transmittance of one homogeneous layer, each ``(N, W)``.
@@ -153,11 +84,7 @@ def _delta_eddington_layer(tau, ssa, g, mu0, attenuation):
     beam) at its top, and the beam's transmission through the layer.
     """
     # Joseph, Wiscombe & Weinman (1976): f = g^2.
-    forward_fraction = g * g
-    scattered_forward = ssa * forward_fraction
-    tau_s = (1.0 - scattered_forward) * tau
-    w = np.minimum(ssa * (1.0 - forward_fraction) / (1.0 - scattered_forward),
-                   MAX_SCALED_SINGLE_SCATTERING_ALBEDO)
+    tau_s, w = delta_scaled(tau, ssa, g * g)
     gs = g / (1.0 + g)
 
     # Eddington coefficients, Meador & Weaver (1980) Table 1.
@@ -180,12 +107,7 @@ def _delta_eddington_layer(tau, ssa, g, mu0, attenuation):
     t = e * (-d * (2.0 + d)) / denominator  # e (1 - Gamma^2) / (1 - Gamma^2 e^2)
 
     # Beam: attenuation per unit scaled optical depth is the same rate m.
-    m = np.broadcast_to(attenuation, k.shape)
-    gap = k - m
-    too_close = np.abs(gap) < EIGENVALUE_GUARD * m
-    if np.any(too_close):
-        shift = np.where(gap > 0, -EIGENVALUE_GUARD, EIGENVALUE_GUARD)
-        m = np.where(too_close, k * (1.0 + shift), m)
+    m = separated_beam_rate(np.broadcast_to(attenuation, k.shape), k)
     k2_minus_m2 = k_squared - m * m
     a_up = w * (gamma3 * (gamma1 - m) + gamma2 * gamma4) / k2_minus_m2
     b_down = w * (gamma4 * (gamma1 + m) + gamma2 * gamma3) / k2_minus_m2
@@ -205,9 +127,9 @@ def transfer_components(tau, ssa, g, mu0, beam_air_mass=None) -> TransferCompone
     ``mu0 <= 0`` get exact zeros for the fluxes (their spherical albedo and upward
     transmittance are still computed: they do not depend on the sun).
     """
-    tau, ssa, g, mu0, beam_air_mass = _check_inputs(tau, ssa, g, mu0, beam_air_mass)
+    tau, ssa, g, mu0, beam_air_mass = checked_layer_inputs(tau, ssa, g, mu0, beam_air_mass)
     n_records, n_layers, n_wavelengths = tau.shape
-    sun_up, mu_sun, air_mass = _beam_geometry(mu0, beam_air_mass, n_layers)
+    sun_up, mu_sun, air_mass = beam_geometry(mu0, beam_air_mass, n_layers)
 
     shape = (n_records, n_wavelengths)
     beam = np.ones(shape)              # beam irradiance normal to the beam
@@ -234,23 +156,6 @@ def transfer_components(tau, ssa, g, mu0, beam_air_mass=None) -> TransferCompone
     reflected = np.where(sun_up[:, None], reflected, 0.0)
     return TransferComponents(direct_horizontal, diffuse_down, reflect_from_below, reflected,
                               transmit_up)
-
-
-def apply_surface_albedo(direct_horizontal, diffuse_down_black_surface, spherical_albedo, albedo):
-    """Direct and diffuse horizontal flux over a Lambertian surface of albedo ``albedo``.
-
-    ``global(a) = global(0) / (1 - a S)`` (Tanre et al. 1979; 6S, Vermote et al. 1997):
-    the surface reflects ``a`` of the global flux, the atmosphere sends ``S`` of that
-    back down, and the geometric series sums to the factor above. The direct beam does
-    not change; the extra light is diffuse. Returns ``(direct_horizontal, diffuse_down)``.
-    """
-    # Computed in the fluxes' precision (float32 from the table, float64 from the solver).
-    albedo = np.asarray(albedo, dtype=np.result_type(direct_horizontal, np.float32))
-    if np.any((albedo < 0) | (albedo > 1)):
-        raise ValueError("surface albedo must lie in [0, 1]")
-    global_black = direct_horizontal + diffuse_down_black_surface
-    global_flux = global_black / (1.0 - albedo * spherical_albedo)
-    return direct_horizontal, global_flux - direct_horizontal
 
 
 def surface_irradiance(tau, ssa, g, mu0, albedo, beam_air_mass=None):
