@@ -20,12 +20,9 @@ tests pass synthetic ones. Samples are evaluated in chunks of bounded size.
 Daily totals for fields integrate over each daylight period by Gauss–Legendre
 quadrature (8 nodes by default: a smooth integrand between the edges, and 4–5 times
 fewer engine samples than a 20-minute trapezoid for the same accuracy, measured in
-``tests/models/test_dose.py``). Sunrise and sunset are found per field and day by the
-sunrise/transit/sunset algorithm of Reda & Andreas (2004), *Solar position algorithm
-for solar radiation applications*, Solar Energy 76:577–589, Appendix A.2 (upper limb
-on the horizon with standard refraction: geometric elevation −0.8333°), vectorised
-over fields × days (the per-date ephemeris is computed once per date); the
-integration limits use the same algorithm at the model's own horizon (see
+``tests/models/test_dose.py``). Sunrise and sunset per field and day come from
+``models.solar_geometry.sunrise_transit_sunset`` (Reda & Andreas 2004, Appendix A.2);
+the integration limits use the same algorithm at the model's own horizon (see
 :func:`field_season`).
 """
 from __future__ import annotations
@@ -34,7 +31,8 @@ from dataclasses import dataclass
 from typing import Callable, Mapping, Sequence
 
 import numpy as np
-from pvlib import spa
+
+from uvdose.models.solar_geometry import HORIZON_REFRACTION_DEG, sunrise_transit_sunset
 
 Columns = dict[str, np.ndarray]
 Evaluator = Callable[[Columns], Columns]
@@ -47,12 +45,6 @@ DEFAULT_DAY_STEP_S = 1200.0
 MIN_STEP_S, MAX_STEP_S = 10.0, 3600.0
 CHUNK_SAMPLES = 50_000
 """Samples per evaluator call: bounds memory (the engine holds several (n, 121) arrays)."""
-SUNRISE_ELEVATION_DEG = -0.8333
-"""Geometric solar elevation at sunrise and sunset (Reda & Andreas 2004, A.2)."""
-SECONDS_PER_DAY = 86400.0
-APPARENT_HORIZON_REFRACTION_DEG = 0.5667
-"""Refraction at the horizon in SPA (Reda & Andreas 2004, eq. 42): the apparent sun is
-on the horizon when its geometric elevation is −0.5667°."""
 EDGE_NUDGE_S = 1.0
 DEFAULT_GAUSS_NODES = 8
 """Gauss–Legendre nodes per daylight period; ``tests/models/test_dose.py`` measures the
@@ -213,76 +205,6 @@ def window_doses(per_window: Mapping[str, np.ndarray], start_unix_s, end_unix_s,
     return out
 
 
-# -- sunrise and sunset ---------------------------------------------------------------
-
-def _wrap(values: np.ndarray, limit: float) -> np.ndarray:
-    # Day-to-day ephemeris differences that straddle 0/360° (Reda & Andreas A.2, step A.2.8).
-    return np.where(np.abs(values) > 2.0, values % 1.0, values)
-
-
-def sunrise_transit_sunset(day_unix_s, latitude_deg, longitude_deg, delta_t_s: float = 69.0,
-                           elevation_deg: float = SUNRISE_ELEVATION_DEG):
-    """Sunrise, transit and sunset (Unix s, UTC) for each field and date.
-
-    ``day_unix_s`` (D,) UTC midnights; ``latitude_deg``, ``longitude_deg`` (F,).
-    Returns (sunrise, transit, sunset, sun_state) each (F, D); ``sun_state`` is 0 for an
-    ordinary day, +1 when the sun stays up all day (midnight sun; sunrise/sunset
-    then are transit ∓ 12 h) and −1 when it never rises (polar night; both equal the
-    transit). Reda & Andreas (2004), Appendix A.2, geometric elevation −0.8333° (the
-    almanac convention) unless ``elevation_deg`` says otherwise; ΔT defaults to 69 s (immaterial here: it moves the sun by about 0.0008°).
-    """
-    days = np.atleast_1d(np.asarray(day_unix_s, dtype=float))
-    if np.any(days % SECONDS_PER_DAY != 0.0):
-        raise ValueError("day_unix_s must be UTC midnights")
-    lat = np.atleast_1d(np.asarray(latitude_deg, dtype=float))[:, None]
-    lon = np.atleast_1d(np.asarray(longitude_deg, dtype=float))[:, None]
-    tt0 = days - delta_t_s
-    nu = spa.solar_position(days, 0, 0, 0, 0, 0, delta_t_s, 0, 1, sst=True)[0]
-    (alpha0, delta0), (alpha_m, delta_m), (alpha_p, delta_p) = (
-        spa.solar_position(t, 0, 0, 0, 0, 0, delta_t_s, 0, 1, sst=True)[1:3]
-        for t in (tt0, tt0 - SECONDS_PER_DAY, tt0 + SECONDS_PER_DAY))
-    m0 = ((alpha0 - lon - nu) / 360.0) % 1.0
-    sin_h0 = np.sin(np.radians(elevation_deg))
-    cos_h0 = ((sin_h0 - np.sin(np.radians(lat)) * np.sin(np.radians(delta0)))
-              / (np.cos(np.radians(lat)) * np.cos(np.radians(delta0))))
-    state = np.where(cos_h0 < -1.0, 1, np.where(cos_h0 > 1.0, -1, 0))
-    h0 = np.degrees(np.arccos(np.clip(cos_h0, -1.0, 1.0))) % 180.0
-    a, ap = _wrap(alpha0 - alpha_m, 2.0), _wrap(delta0 - delta_m, 2.0)
-    b, bp = _wrap(alpha_p - alpha0, 2.0), _wrap(delta_p - delta0, 2.0)
-    c, cp = b - a, bp - ap
-
-    def local(m):
-        nu_i = nu + 360.985647 * m
-        n = m + delta_t_s / SECONDS_PER_DAY
-        alpha_i = alpha0 + n * (a + b + c * n) / 2.0
-        delta_i = delta0 + n * (ap + bp + cp * n) / 2.0
-        hour = (nu_i + lon - alpha_i) % 360.0
-        hour = np.where(hour >= 180.0, hour - 360.0, hour)
-        elev = np.degrees(np.arcsin(np.sin(np.radians(lat)) * np.sin(np.radians(delta_i))
-                                    + np.cos(np.radians(lat)) * np.cos(np.radians(delta_i))
-                                    * np.cos(np.radians(hour))))
-        return hour, elev, delta_i
-
-    hour_t, _, _ = local(m0)
-    transit = days + (m0 - hour_t / 360.0) * SECONDS_PER_DAY
-    # Rising and setting fractions of the day, unwrapped (not taken modulo 1) so that a
-    # sunrise before 00:00 UTC or a sunset after 24:00 UTC stays on the right side of the
-    # transit; A.2 reduces them modulo 1 and re-adds the day, which is equivalent.
-    events = []
-    for sign in (-1.0, 1.0):
-        m = m0 + sign * h0 / 360.0
-        hour, elev, dec = local(m)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            correction = (elev - elevation_deg) / (
-                360.0 * np.cos(np.radians(dec)) * np.cos(np.radians(lat)) * np.sin(np.radians(hour)))
-        events.append(days + (m + np.where(state == 0, correction, 0.0)) * SECONDS_PER_DAY)
-    sunrise, sunset = events
-    half_day = SECONDS_PER_DAY / 2.0
-    sunrise = np.where(state == 1, transit - half_day, np.where(state == -1, transit, sunrise))
-    sunset = np.where(state == 1, transit + half_day, np.where(state == -1, transit, sunset))
-    return sunrise, transit, sunset, state
-
-
 # -- daily and seasonal totals for fields ---------------------------------------------
 
 @dataclass
@@ -293,7 +215,8 @@ class FieldSeason:
     doses; ``clear_sky_reference_j_m2`` is the same field's dose under the ozone
     climatology and no cloud (CMF 1), ``ratio_to_clear_sky`` their quotient (NaN on
     days with a zero reference, e.g. polar night). ``sun_state`` as in
-    :func:`sunrise_transit_sunset`. ``samples`` counts evaluated irradiance samples.
+    ``models.solar_geometry.sunrise_transit_sunset``. ``samples`` counts evaluated
+    irradiance samples.
     """
 
     day_unix_s: np.ndarray
@@ -355,7 +278,7 @@ def field_season(per_field: Mapping[str, np.ndarray], day_unix_s, evaluate: Eval
     # the clear-sky diffuse irradiance steps from exactly zero to a small positive
     # value, so the edges are nudged one second inside and evaluated.
     rise, _, set_, model_state = sunrise_transit_sunset(
-        days, lat, lon, elevation_deg=-APPARENT_HORIZON_REFRACTION_DEG)
+        days, lat, lon, elevation_deg=-HORIZON_REFRACTION_DEG)
     inside = (model_state == 0).ravel()
     start = np.where(inside, rise.ravel() + EDGE_NUDGE_S, rise.ravel())
     end = np.where(inside, set_.ravel() - EDGE_NUDGE_S, set_.ravel())

@@ -1,6 +1,7 @@
-"""Solar position, Earth–Sun distance and surface pressure from elevation.
+"""Solar position, Earth–Sun distance, sunrise and sunset, and surface pressure from elevation.
 
 Arrays in, arrays out: one entry per record, shape ``(N,)``. Scalars broadcast.
+Sunrise, transit and sunset (``sunrise_transit_sunset``) are per place and date, (F, D).
 
 Solar position follows the NREL Solar Position Algorithm (SPA):
     Reda, I. and Andreas, A. (2004). Solar position algorithm for solar radiation
@@ -37,13 +38,21 @@ from pvlib import spa
 __all__ = [
     "SolarPosition",
     "solar_position",
+    "sunrise_transit_sunset",
     "pressure_from_elevation_hpa",
+    "surface_pressure_hpa",
     "STANDARD_SEA_LEVEL_PRESSURE_HPA",
+    "HORIZON_REFRACTION_DEG",
+    "SUNRISE_ELEVATION_DEG",
 ]
 
-# SPA's refraction at the horizon and the Sun's apparent semi-diameter, degrees
-# (Reda & Andreas 2004, eq. 42 and the text after it).
-_HORIZON_REFRACTION_DEG = 0.5667
+HORIZON_REFRACTION_DEG = 0.5667
+"""Refraction at the horizon in SPA (Reda & Andreas 2004, eq. 42 and the text after it):
+the apparent sun is on the horizon when its geometric elevation is −0.5667°."""
+SUNRISE_ELEVATION_DEG = -0.8333
+"""Geometric solar elevation at sunrise and sunset: the upper limb on the horizon with
+standard refraction (Reda & Andreas 2004, Appendix A.2)."""
+SECONDS_PER_DAY = 86400.0
 
 # U.S. Standard Atmosphere, 1976 (NOAA/NASA/USAF, NOAA-S/T 76-1562), Table 4 and
 # section 1.3: sea-level values, gas constant, molar mass and the first two layers.
@@ -232,13 +241,102 @@ def solar_position(
     delta_prime = spa.topocentric_sun_declination(delta, x, y, xi, delta_alpha, hour_angle)
     hour_angle_prime = spa.topocentric_local_hour_angle(hour_angle, delta_alpha)
     e0 = spa.topocentric_elevation_angle_without_atmosphere(lat, delta_prime, hour_angle_prime)
-    refraction = spa.atmospheric_refraction_correction(pres, temp, e0, _HORIZON_REFRACTION_DEG)
+    refraction = spa.atmospheric_refraction_correction(pres, temp, e0, HORIZON_REFRACTION_DEG)
     zenith = spa.topocentric_zenith_angle(spa.topocentric_elevation_angle(e0, refraction))
     gamma = spa.topocentric_astronomers_azimuth(hour_angle_prime, delta_prime, lat)
     azimuth = spa.topocentric_azimuth_angle(gamma)
     return SolarPosition(zenith_deg=np.asarray(zenith, dtype=float),
                          azimuth_deg=np.asarray(azimuth, dtype=float),
                          earth_sun_distance_au=np.asarray(radius_au, dtype=float))
+
+
+def _wrap(values: np.ndarray, limit: float) -> np.ndarray:
+    # Day-to-day ephemeris differences that straddle 0/360° (Reda & Andreas A.2, step A.2.8).
+    return np.where(np.abs(values) > limit, values % 1.0, values)
+
+
+def sunrise_transit_sunset(day_unix_s, latitude_deg, longitude_deg, delta_t_s: float = 69.0,
+                           elevation_deg: float = SUNRISE_ELEVATION_DEG):
+    """Sunrise, transit and sunset (Unix s, UTC) for each place and date.
+
+    The sunrise/transit/sunset algorithm of SPA [1]_, Appendix A.2, vectorised over
+    places × dates (the per-date ephemeris is computed once per date).
+
+    Parameters
+    ----------
+    day_unix_s : array (D,)
+        UTC midnights, POSIX seconds.
+    latitude_deg, longitude_deg : arrays (F,)
+        Places, degrees (north and east positive).
+    delta_t_s : float
+        ΔT = TT − UT1, seconds; 69 s by default (immaterial here: it moves the sun by
+        about 0.0008°).
+    elevation_deg : float
+        Geometric solar elevation that counts as rising and setting; the almanac
+        convention :data:`SUNRISE_ELEVATION_DEG` (−0.8333°) by default.
+
+    Returns
+    -------
+    tuple of numpy.ndarray, each (F, D)
+        ``(sunrise, transit, sunset, sun_state)``: ``sun_state`` is 0 for an ordinary
+        day, +1 when the sun stays up all day (midnight sun; sunrise and sunset are then
+        transit ∓ 12 h) and −1 when it never rises (polar night; both equal the transit).
+
+    References
+    ----------
+    .. [1] Reda, I. and Andreas, A. (2004). Solar position algorithm for solar radiation
+       applications. Solar Energy 76(5), 577–589. doi:10.1016/j.solener.2003.12.003
+    """
+    days = np.atleast_1d(np.asarray(day_unix_s, dtype=float))
+    if np.any(days % SECONDS_PER_DAY != 0.0):
+        raise ValueError("day_unix_s must be UTC midnights")
+    lat = np.atleast_1d(np.asarray(latitude_deg, dtype=float))[:, None]
+    lon = np.atleast_1d(np.asarray(longitude_deg, dtype=float))[:, None]
+    tt0 = days - delta_t_s
+    nu = spa.solar_position(days, 0, 0, 0, 0, 0, delta_t_s, 0, 1, sst=True)[0]
+    (alpha0, delta0), (alpha_m, delta_m), (alpha_p, delta_p) = (
+        spa.solar_position(t, 0, 0, 0, 0, 0, delta_t_s, 0, 1, sst=True)[1:3]
+        for t in (tt0, tt0 - SECONDS_PER_DAY, tt0 + SECONDS_PER_DAY))
+    m0 = ((alpha0 - lon - nu) / 360.0) % 1.0
+    sin_h0 = np.sin(np.radians(elevation_deg))
+    cos_h0 = ((sin_h0 - np.sin(np.radians(lat)) * np.sin(np.radians(delta0)))
+              / (np.cos(np.radians(lat)) * np.cos(np.radians(delta0))))
+    state = np.where(cos_h0 < -1.0, 1, np.where(cos_h0 > 1.0, -1, 0))
+    h0 = np.degrees(np.arccos(np.clip(cos_h0, -1.0, 1.0))) % 180.0
+    a, ap = _wrap(alpha0 - alpha_m, 2.0), _wrap(delta0 - delta_m, 2.0)
+    b, bp = _wrap(alpha_p - alpha0, 2.0), _wrap(delta_p - delta0, 2.0)
+    c, cp = b - a, bp - ap
+
+    def local(m):
+        nu_i = nu + 360.985647 * m
+        n = m + delta_t_s / SECONDS_PER_DAY
+        alpha_i = alpha0 + n * (a + b + c * n) / 2.0
+        delta_i = delta0 + n * (ap + bp + cp * n) / 2.0
+        hour = (nu_i + lon - alpha_i) % 360.0
+        hour = np.where(hour >= 180.0, hour - 360.0, hour)
+        elev = np.degrees(np.arcsin(np.sin(np.radians(lat)) * np.sin(np.radians(delta_i))
+                                    + np.cos(np.radians(lat)) * np.cos(np.radians(delta_i))
+                                    * np.cos(np.radians(hour))))
+        return hour, elev, delta_i
+
+    hour_t, _, _ = local(m0)
+    transit = days + (m0 - hour_t / 360.0) * SECONDS_PER_DAY
+    # Rising and setting fractions of the day, unwrapped (not taken modulo 1) so that a
+    # sunrise before 00:00 UTC or a sunset after 24:00 UTC stays on the right side of the
+    # transit; A.2 reduces them modulo 1 and re-adds the day, which is equivalent.
+    events = []
+    for sign in (-1.0, 1.0):
+        m = m0 + sign * h0 / 360.0
+        hour, elev, dec = local(m)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            correction = (elev - elevation_deg) / (
+                360.0 * np.cos(np.radians(dec)) * np.cos(np.radians(lat)) * np.sin(np.radians(hour)))
+        events.append(days + (m + np.where(state == 0, correction, 0.0)) * SECONDS_PER_DAY)
+    sunrise, sunset = events
+    half_day = SECONDS_PER_DAY / 2.0
+    sunrise = np.where(state == 1, transit - half_day, np.where(state == -1, transit, sunrise))
+    sunset = np.where(state == 1, transit + half_day, np.where(state == -1, transit, sunset))
+    return sunrise, transit, sunset, state
 
 
 def pressure_from_elevation_hpa(elevation_m) -> np.ndarray:

@@ -2,7 +2,7 @@
 
 Request → record schemas below, read by the shared readers and column checks
 (:mod:`service.wire_formats`, :mod:`service.column_checks`) → arrays → ``models.dose`` /
-``models.routes`` with the engine as evaluator (:mod:`service.engine_gateway`, through
+``models.vehicle_routes`` with the engine as evaluator (:mod:`service.engine_gateway`, through
 the grid-cell cache) → arrays → JSON. The physics, the quadrature and their sources are
 documented in those modules; this layer only validates and shapes.
 
@@ -34,7 +34,7 @@ import numpy as np
 from flask import Blueprint, Response, current_app, request
 from marshmallow import fields, validate
 
-from uvdose.models import MODEL_VERSION, clouds, dose, exposure, filters, routes
+from uvdose.models import MODEL_VERSION, clouds, dose, exposure, filters, vehicle_routes
 from uvdose.models.spectral_grid import WAVELENGTH_NM
 from uvdose.service import engine_gateway, metrics
 from uvdose.service.cautions import DOSE_CAUTION
@@ -524,7 +524,7 @@ def _route_count(raw_routes: list) -> int:
     return sum(map(size, raw_routes))
 
 
-def _read_routes(raw_routes: list) -> tuple[routes.RoutePoints, dict[str, np.ndarray], np.ndarray]:
+def _read_routes(raw_routes: list) -> tuple[vehicle_routes.RoutePoints, dict[str, np.ndarray], np.ndarray]:
     """(points of every route, per-route conditions (R,), route ids) of valid routes; else a 422
     problem naming every bad value by route, point and field."""
     n_routes = len(raw_routes)
@@ -552,7 +552,7 @@ def _read_routes(raw_routes: list) -> tuple[routes.RoutePoints, dict[str, np.nda
     if errors:
         errors.sort(key=lambda error: error.index)
         raise invalid_records(errors, n_routes, "route")
-    points = routes.RoutePoints(route=np.asarray(flat.point_route, dtype=np.int64),
+    points = vehicle_routes.RoutePoints(route=np.asarray(flat.point_route, dtype=np.int64),
                                 time_unix_s=columns["time_unix_s"], latitude_deg=columns["latitude_deg"],
                                 longitude_deg=columns["longitude_deg"], stop=columns["stop"], gap=columns["gap"])
     per_route = {name: route_batch.columns.get(name, np.full(n_routes, np.nan))
@@ -577,15 +577,16 @@ def route_doses() -> Response:
                       extensions={"max_records": MAX_ROUTE_POINTS})
     points, per_route, ids = _read_routes(raw_routes)
     spectra = list(options.get("spectra") or DEFAULT_ROUTE_SPECTRA)
-    step_s = float(options.get("step_s") or routes.DEFAULT_ROUTE_STEP_S)
+    step_s = float(options.get("step_s") or vehicle_routes.DEFAULT_ROUTE_STEP_S)
     transmittance, label = _transmittance(options, default=DEFAULT_ROUTE_GLAZING)
     side = options.get("driver_side") or "left"
-    cutoff = float(options.get("roof_cutoff_elevation_deg", routes.DEFAULT_ROOF_CUTOFF_ELEVATION_DEG))
-    sky_view = float(options.get("cab_sky_view_factor", routes.DEFAULT_CAB_SKY_VIEW_FACTOR))
+    cutoff = float(options.get("roof_cutoff_elevation_deg", vehicle_routes.DEFAULT_ROOF_CUTOFF_ELEVATION_DEG))
+    sky_view = float(options.get("cab_sky_view_factor", vehicle_routes.DEFAULT_CAB_SKY_VIEW_FACTOR))
     evaluate = engine_gateway.current().dose_evaluator(spectra, transmittance, label, "routes")
     try:
-        out = routes.route_doses(points, evaluate, per_route=per_route, driver_side=side, step_s=step_s,
-                                 roof_cutoff_elevation_deg=cutoff, sky_view_factor=sky_view, spectra=spectra)
+        out = vehicle_routes.route_doses(points, evaluate, per_route=per_route, driver_side=side,
+                                         step_s=step_s, roof_cutoff_elevation_deg=cutoff,
+                                         sky_view_factor=sky_view, spectra=spectra)
     except ValueError as error:
         message = str(error)
         index = int(message.split()[1].rstrip(",:")) if message.startswith("route ") else None

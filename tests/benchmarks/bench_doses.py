@@ -7,7 +7,7 @@ the whole UTC day with a 10-minute trapezoid (145 engine samples per field-day),
 subset and scaled per field-day.
 
 Routes: 1 000 routes of 500 points (1-minute fixes, two parked stops each) through
-``models.routes.route_doses`` behind clear side glass. Baseline: the same function
+``models.vehicle_routes.route_doses`` behind clear side glass. Baseline: the same function
 called route by route in a Python loop, on a subset, scaled per point.
 
 Scenario (invented): vans out of a depot at 51.2 N, 6.8 E on 2026-07-15; fields
@@ -19,7 +19,7 @@ import time
 
 import numpy as np
 
-from uvdose.models import dose, filters, routes
+from uvdose.models import dose, filters, vehicle_routes
 from uvdose.models.spectral_grid import WAVELENGTH_NM
 
 DAY = 1781827200.0
@@ -71,7 +71,7 @@ def bench_fields(n_fields: int, n_baseline: int, method: str) -> None:
     print(f"  ratio ours/baseline speed: {baseline / ours:.1f}x   target >= 2000 field-days/s")
 
 
-def synthetic_routes(n_routes: int, n_points: int, rng) -> routes.RoutePoints:
+def synthetic_routes(n_routes: int, n_points: int, rng) -> vehicle_routes.RoutePoints:
     depot_lat, depot_lon = 51.2, 6.8
     start = ROUTE_DAY_START + rng.uniform(0.0, 3600.0, n_routes)
     t = start[:, None] + 60.0 * np.arange(n_points)[None, :]
@@ -81,7 +81,7 @@ def synthetic_routes(n_routes: int, n_points: int, rng) -> routes.RoutePoints:
     lon = depot_lon + np.cumsum(speed_deg * np.sin(heading) / np.cos(np.radians(depot_lat)), axis=1)
     stop = np.zeros((n_routes, n_points), bool)
     stop[:, [n_points // 3, 2 * n_points // 3]] = True
-    return routes.RoutePoints(np.repeat(np.arange(n_routes), n_points), t.ravel(), lat.ravel(),
+    return vehicle_routes.RoutePoints(np.repeat(np.arange(n_routes), n_points), t.ravel(), lat.ravel(),
                               lon.ravel(), stop.ravel(), np.zeros(n_routes * n_points, bool))
 
 
@@ -93,17 +93,17 @@ def bench_routes(n_routes: int, n_points: int, n_baseline: int, method: str) -> 
     engine = dose.engine_evaluator(spectra, transmittance=glass, method=method)
     timed = Timed(engine)
     start = time.perf_counter()
-    routes.route_doses(points, timed, spectra=spectra)
+    vehicle_routes.route_doses(points, timed, spectra=spectra)
     ours = time.perf_counter() - start
 
     base_timed = Timed(engine)
     start = time.perf_counter()
     for r in range(n_baseline):
         mask = points.route == r
-        one = routes.RoutePoints(np.zeros(mask.sum(), np.int64), points.time_unix_s[mask],
+        one = vehicle_routes.RoutePoints(np.zeros(mask.sum(), np.int64), points.time_unix_s[mask],
                                  points.latitude_deg[mask], points.longitude_deg[mask],
                                  points.stop[mask], points.gap[mask])
-        routes.route_doses(one, base_timed, spectra=spectra)
+        vehicle_routes.route_doses(one, base_timed, spectra=spectra)
     baseline = (time.perf_counter() - start) / n_baseline * n_routes
     total = n_routes * n_points
     print(f"routes: {n_routes} x {n_points} points = {total}")

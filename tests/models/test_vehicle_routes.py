@@ -1,8 +1,8 @@
-"""Routes: bearings, interpolation, driver side, stops and gaps, roof shading."""
+"""Vehicle routes: bearings, interpolation, driver side, stops and gaps, roof shading."""
 import numpy as np
 import pytest
 
-from uvdose.models import receivers, routes
+from uvdose.models import receivers, vehicle_routes
 from uvdose.models.solar_geometry import solar_position
 
 T0 = 1781870400.0  # 2026-06-21 12:00 UTC
@@ -27,19 +27,19 @@ def test_initial_bearing_cardinal_and_known_value():
     # Spherical trigonometry facts: due north 0°, due east along the equator 90°,
     # due south 180°; (0°,0°)→(1°,1°) is 44.9956° (computed from Snyder eq. 5-4b by hand,
     # and agrees with the planar 45° to within the meridian convergence).
-    b = routes.initial_bearing_deg([0, 0, 10, 0], [0, 0, 5, 0], [1, 0, 9, 1], [0, 1, 5, 1])
+    b = vehicle_routes.initial_bearing_deg([0, 0, 10, 0], [0, 0, 5, 0], [1, 0, 9, 1], [0, 1, 5, 1])
     np.testing.assert_allclose(b, [0.0, 90.0, 180.0, 44.9956], atol=1e-3)
 
 
 def test_constant_rate_dose_over_driving_time_excludes_stops_and_gaps():
-    pts = routes.points_from_lists([
+    pts = vehicle_routes.points_from_lists([
         {"time_unix_s": [T0, T0 + 600, T0 + 1200, T0 + 1800, T0 + 2400],
          "latitude_deg": [45.0, 45.01, 45.02, 45.03, 45.04],
          "longitude_deg": [7.0] * 5,
          "stop": [False, True, False, False, False],
          "gap": [False, False, False, True, False]},
     ])
-    out = routes.route_doses(pts, constant)
+    out = vehicle_routes.route_doses(pts, constant)
     # Driving legs 0 and 2: 1200 s at 0.1 W m⁻² → 120 J m⁻² (closed form).
     np.testing.assert_allclose(out.dose_j_m2["erythema"], [120.0])
     np.testing.assert_allclose([out.driving_s[0], out.parked_s[0], out.gap_s[0]], [1200.0, 600.0, 600.0])
@@ -47,11 +47,11 @@ def test_constant_rate_dose_over_driving_time_excludes_stops_and_gaps():
 
 def test_interpolation_and_driver_side_heading():
     seen = []
-    pts = routes.points_from_lists([
+    pts = vehicle_routes.points_from_lists([
         {"time_unix_s": [T0, T0 + 3600], "latitude_deg": [45.0, 45.5], "longitude_deg": [7.0, 7.0]},
         {"time_unix_s": [T0, T0 + 3600], "latitude_deg": [0.0, 0.0], "longitude_deg": [179.9, -179.9]},
     ])
-    routes.route_doses(pts, recording(seen), step_s=1800, roof_cutoff_elevation_deg=90.0)
+    vehicle_routes.route_doses(pts, recording(seen), step_s=1800, roof_cutoff_elevation_deg=90.0)
     cols = seen[0]
     first = np.flatnonzero(cols["time_unix_s"] == T0 + 1800)
     # Midpoint in time is the midpoint in space; the antimeridian is crossed the short way.
@@ -63,22 +63,22 @@ def test_interpolation_and_driver_side_heading():
                                atol=1e-6)
     np.testing.assert_allclose(cols["tilt_deg"], 90.0)
     seen.clear()
-    routes.route_doses(pts, recording(seen), driver_side="right", roof_cutoff_elevation_deg=90.0)
+    vehicle_routes.route_doses(pts, recording(seen), driver_side="right", roof_cutoff_elevation_deg=90.0)
     np.testing.assert_allclose(seen[0]["receiver_azimuth_deg"][0], 90.0, atol=1e-6)
 
 
 def test_stationary_leg_keeps_previous_heading_and_still_route_is_rejected():
     seen = []
-    pts = routes.points_from_lists([{"time_unix_s": [T0, T0 + 600, T0 + 1200],
+    pts = vehicle_routes.points_from_lists([{"time_unix_s": [T0, T0 + 600, T0 + 1200],
                                      "latitude_deg": [10.0, 10.0, 10.0],
                                      "longitude_deg": [20.0, 20.1, 20.1]}])
-    routes.route_doses(pts, recording(seen), roof_cutoff_elevation_deg=90.0)
+    vehicle_routes.route_doses(pts, recording(seen), roof_cutoff_elevation_deg=90.0)
     # Heading east, driver on the left: the window faces north.
     np.testing.assert_allclose(_wrapped(seen[0]["receiver_azimuth_deg"]), 0.0, atol=0.1)
-    still = routes.points_from_lists([{"time_unix_s": [T0, T0 + 60], "latitude_deg": [1.0, 1.0],
+    still = vehicle_routes.points_from_lists([{"time_unix_s": [T0, T0 + 60], "latitude_deg": [1.0, 1.0],
                                        "longitude_deg": [2.0, 2.0]}])
     with pytest.raises(ValueError, match="route 0: all points at one position"):
-        routes.route_doses(still, constant)
+        vehicle_routes.route_doses(still, constant)
 
 
 def _split_sky(columns):
@@ -95,10 +95,10 @@ def _split_sky(columns):
 def test_roof_shades_the_beam_above_the_cutoff():
     # Noon in June at 45 N: the sun is ~68° high, above the 50° default cutoff; the
     # shaded receiver gets only its sky term, 0.1 μ0 · (1 + cos 90°)/2 · sky view 0.5.
-    pts = routes.points_from_lists([{"time_unix_s": [T0 - 1800, T0 + 1800],
+    pts = vehicle_routes.points_from_lists([{"time_unix_s": [T0 - 1800, T0 + 1800],
                                      "latitude_deg": [45.0, 44.8], "longitude_deg": [0.0, 0.0]}])
-    shaded = routes.route_doses(pts, _split_sky).dose_j_m2["erythema"][0]
-    open_sky = routes.route_doses(pts, _split_sky, roof_cutoff_elevation_deg=90.0).dose_j_m2["erythema"][0]
+    shaded = vehicle_routes.route_doses(pts, _split_sky).dose_j_m2["erythema"][0]
+    open_sky = vehicle_routes.route_doses(pts, _split_sky, roof_cutoff_elevation_deg=90.0).dose_j_m2["erythema"][0]
     t = np.linspace(T0 - 1800, T0 + 1800, 361)
     mu0 = np.cos(np.radians(solar_position(t, np.linspace(45, 44.8, 361), 0.0).zenith_deg))
     sky_only = np.trapezoid(0.1 * mu0 * 0.5 * 0.5, t)
@@ -116,4 +116,4 @@ def test_roof_shades_the_beam_above_the_cutoff():
 def test_bad_routes_name_route_and_point(route, message):
     ok = {"time_unix_s": [T0, T0 + 60], "latitude_deg": [0.0, 0.1], "longitude_deg": [0.0, 0.0]}
     with pytest.raises(ValueError, match=rf"route 1.*{message}"):
-        routes.route_doses(routes.points_from_lists([ok, route]), constant)
+        vehicle_routes.route_doses(vehicle_routes.points_from_lists([ok, route]), constant)

@@ -1,4 +1,4 @@
-"""Driver routes: interpolation along timestamped positions, heading, and the dose on
+"""Vehicle (driver) routes: interpolation along timestamped positions, heading, and the dose on
 a receiver facing the driver's side window.
 
 A route is an ordered list of points (time, latitude, longitude), each optionally
