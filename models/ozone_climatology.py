@@ -31,6 +31,8 @@ from pathlib import Path
 
 import numpy as np
 
+from uvdose.models.grid_interpolation import GridAxis, TrilinearGrid
+
 TABLE_PATH = Path(__file__).with_name("data") / "ozone_climatology.npz"
 
 DAYS_PER_CLIMATOLOGICAL_YEAR = 365.0
@@ -95,9 +97,8 @@ class ClimatologyTable:
         self.longitude_nodes_deg = np.asarray(longitude_nodes_deg, dtype=float)
         self.ozone_du = np.ascontiguousarray(ozone_du, dtype=np.float32)
         self.metadata = dict(metadata)
-        self._day_step = float(self.day_nodes[1] - self.day_nodes[0])
-        self._lat_step = float(self.latitude_nodes_deg[1] - self.latitude_nodes_deg[0])
-        self._lon_step = float(self.longitude_nodes_deg[1] - self.longitude_nodes_deg[0])
+        day_step = float(self.day_nodes[1] - self.day_nodes[0])
+        lon_step = float(self.longitude_nodes_deg[1] - self.longitude_nodes_deg[0])
         n_day, n_lat, n_lon = self.ozone_du.shape
         if not (
             n_day == self.day_nodes.size
@@ -105,21 +106,14 @@ class ClimatologyTable:
             and n_lon == self.longitude_nodes_deg.size
         ):
             raise ValueError("climatology table axes do not match its array shape")
-        if not np.isclose(n_lon * self._lon_step, 360.0):
+        if not np.isclose(n_lon * lon_step, 360.0):
             raise ValueError("climatology table longitudes must span the whole circle")
-        if not np.isclose(n_day * self._day_step, DAYS_PER_CLIMATOLOGICAL_YEAR):
+        if not np.isclose(n_day * day_step, DAYS_PER_CLIMATOLOGICAL_YEAR):
             raise ValueError("climatology table days must span one 365-day year")
-        # Pad one longitude column (the date-line wrap) and one day plane (the year
-        # wrap), then pair each value with its eastern neighbour so one gather
-        # fetches both longitude corners.
-        padded = np.empty((n_day + 1, n_lat, n_lon + 1), dtype=np.float32)
-        padded[:n_day, :, :n_lon] = self.ozone_du
-        padded[:n_day, :, n_lon] = self.ozone_du[:, :, 0]
-        padded[n_day] = padded[0]
-        flat = padded.reshape(-1)
-        self._east_pairs = np.stack([flat[:-1], flat[1:]], axis=1).view(np.complex64).reshape(-1)
-        self._row_stride = n_lon + 1
-        self._plane_stride = n_lat * (n_lon + 1)
+        self._grid = TrilinearGrid(
+            (GridAxis(self.day_nodes, DAYS_PER_CLIMATOLOGICAL_YEAR), GridAxis(self.latitude_nodes_deg),
+             GridAxis(self.longitude_nodes_deg, 360.0)),
+            self.ozone_du)
 
     @classmethod
     def load(cls, path: Path = TABLE_PATH) -> "ClimatologyTable":
@@ -136,45 +130,13 @@ class ClimatologyTable:
             )
 
     def interpolate(self, latitude_deg, longitude_deg, day_of_year) -> np.ndarray:
-        """Trilinear interpolation, periodic in longitude and day.
+        """Trilinear interpolation, periodic in longitude and day (``models.grid_interpolation``).
 
         Inputs must already be validated: latitude in [-90, 90], longitude in
-        [-180, 360], day of year in [1, 367).
+        [-180, 360], day of year in [1, 367). Poleward of the outermost latitude rows
+        their values hold.
         """
-        n_day, n_lat, n_lon = self.ozone_du.shape
-
-        # Latitude: hold the outermost rows constant towards the poles.
-        y = (np.asarray(latitude_deg, dtype=float) - self.latitude_nodes_deg[0]) / self._lat_step
-        np.clip(y, 0.0, n_lat - 1.0 - 1e-9, out=y)
-        j0 = y.astype(np.intp)
-        wy = y - j0
-
-        x = (np.asarray(longitude_deg, dtype=float) - self.longitude_nodes_deg[0]) / self._lon_step
-        x = np.where(x < 0.0, x + n_lon, x)
-        x = np.where(x >= n_lon, x - n_lon, x)
-        x = np.where(x >= n_lon, x - n_lon, x)
-        i0 = np.minimum(x.astype(np.intp), n_lon - 1)
-        wx = x - i0
-
-        t = (np.asarray(day_of_year, dtype=float) - self.day_nodes[0]) / self._day_step
-        t = np.where(t >= n_day, t - n_day, t)
-        k0 = np.minimum(t.astype(np.intp), n_day - 1)
-        wt = t - k0
-
-        base = k0 * self._plane_stride + j0 * self._row_stride + i0
-
-        def along_longitude(index):
-            pair = self._east_pairs.take(index)
-            west = pair.real.astype(float)
-            return west + (pair.imag - west) * wx
-
-        south0 = along_longitude(base)
-        north0 = along_longitude(base + self._row_stride)
-        south1 = along_longitude(base + self._plane_stride)
-        north1 = along_longitude(base + self._plane_stride + self._row_stride)
-        now = south0 + (north0 - south0) * wy
-        later = south1 + (north1 - south1) * wy
-        return now + (later - now) * wt
+        return self._grid.interpolate(day_of_year, latitude_deg, longitude_deg)
 
 
 @lru_cache(maxsize=1)

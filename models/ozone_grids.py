@@ -46,6 +46,7 @@ from pathlib import Path
 
 import numpy as np
 
+from uvdose.models.grid_interpolation import GridAxis, TrilinearGrid
 from uvdose.models.ozone_climatology import climatological_ozone_du, day_of_year_from_unix
 
 PLAUSIBLE_OZONE_DU = (50.0, 700.0)
@@ -62,7 +63,6 @@ SOURCE_CLIENT = "client"
 SOURCE_CLIMATOLOGY = "climatology"
 GRID_SOURCE_PREFIX = "grid:"
 
-_SECONDS_PER_DAY = 86400.0
 
 
 class OzoneGridError(ValueError):
@@ -107,13 +107,14 @@ class OzoneGrid:
         self.wraps_longitude = bool(
             np.allclose(steps, steps[0]) and np.isclose(steps[0] * self.longitude_deg.size, 360.0)
         )
-        if self.wraps_longitude:
-            # Append the first column a circle later so interpolation spans the seam.
-            self._lon_nodes = np.append(self.longitude_deg, self.longitude_deg[0] + 360.0)
-            self._values = np.concatenate([self.ozone_du, self.ozone_du[:, :, :1]], axis=2)
-        else:
-            self._lon_nodes = self.longitude_deg
-            self._values = self.ozone_du
+        # A wrapping grid's extent runs on to its first column a circle later.
+        self._lon_extent = (self.longitude_deg[0], (self.longitude_deg[0] + 360.0
+                                                    if self.wraps_longitude
+                                                    else self.longitude_deg[-1]))
+        self._grid = TrilinearGrid(
+            (GridAxis(periods.centre_s), GridAxis(self.latitude_deg),
+             GridAxis(self.longitude_deg, 360.0 if self.wraps_longitude else None)),
+            self.ozone_du)
 
     @property
     def label(self) -> str:
@@ -295,46 +296,19 @@ class OzoneGrid:
             covered = (
                 (t >= start_s) & (t < end_s)
                 & (lat >= self.latitude_deg[0]) & (lat <= self.latitude_deg[-1])
-                & (lon >= self._lon_nodes[0]) & (lon <= self._lon_nodes[-1])
+                & (lon >= self._lon_extent[0]) & (lon <= self._lon_extent[1])
             )
         result = np.full(lat.shape, np.nan)
-        if not covered.any():
-            return result, covered
-        lat_c, lon_c, t_c = lat[covered], lon[covered], t[covered]
-
-        j0, wy = _bracket(self.latitude_deg, lat_c)
-        i0, wx = _bracket(self._lon_nodes, lon_c)
-        centres = self._periods.centre_s
-        if centres.size == 1:
-            k0 = np.zeros(t_c.shape, dtype=np.intp)
-            wt = np.zeros(t_c.shape)
-        else:
-            k0, wt = _bracket(centres, np.clip(t_c, centres[0], centres[-1]))
-        k1 = np.minimum(k0 + 1, centres.size - 1)
-
-        v = self._values
-
-        def spatial(k):
-            south = v[k, j0, i0] * (1.0 - wx) + v[k, j0, i0 + 1] * wx
-            north = v[k, j0 + 1, i0] * (1.0 - wx) + v[k, j0 + 1, i0 + 1] * wx
-            return south * (1.0 - wy) + north * wy
-
-        result[covered] = spatial(k0) * (1.0 - wt) + spatial(k1) * wt
+        if covered.any():
+            result[covered] = self._grid.interpolate(t[covered], lat[covered], lon[covered])
         return result, covered
 
     def _longitude_into_extent(self, lon: np.ndarray) -> np.ndarray:
         """Shift longitudes by ±360° where that brings them into the node range."""
-        low, high = self._lon_nodes[0], self._lon_nodes[-1]
+        low, high = self._lon_extent
         shifted = np.where(lon < low, lon + 360.0, lon)
         shifted = np.where(shifted > high, shifted - 360.0, shifted)
         return np.where((shifted >= low) & (shifted <= high), shifted, lon)
-
-
-def _bracket(nodes: np.ndarray, values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Lower node index and fractional weight for values within [nodes[0], nodes[-1]]."""
-    index = np.clip(np.searchsorted(nodes, values, side="right") - 1, 0, nodes.size - 2)
-    weight = (values - nodes[index]) / (nodes[index + 1] - nodes[index])
-    return index, weight
 
 
 def _date_kind(where: str, dates: list[str], line_numbers: np.ndarray) -> str:
