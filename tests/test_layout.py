@@ -1,5 +1,6 @@
-"""The layout the code promises (DEVELOPERS.md): blueprints never import each other, and
-the service's modules import one another without a circle.
+"""The layout the code promises (DEVELOPERS.md): blueprints never import each other, the
+service's modules and the models' modules each import one another without a circle, and
+models/ is physics only (no web, cache or wire-format library, nothing of the service).
 
 Imports are read from the source (every ``import``/``from … import`` anywhere in a module,
 function-level ones included, and ``importlib.import_module("uvdose.…")`` calls), so a
@@ -11,10 +12,12 @@ import ast
 from pathlib import Path
 
 REPO = Path(__file__).resolve().parents[1]
+FORBIDDEN_IN_MODELS = ("flask", "redis", "marshmallow", "orjson", "uvdose.service")
+"""What models/ never imports (its own sub-modules included)."""
 
 
-def imported_modules(path: Path, package: str) -> set[str]:
-    """Modules of ``package`` (dotted, e.g. ``uvdose.service``) that the file at ``path`` imports."""
+def imported_names(path: Path) -> set[str]:
+    """Every dotted name the file at ``path`` imports (``from a import b`` gives ``a`` and ``a.b``)."""
     tree = ast.parse(path.read_text(encoding="utf-8"))
     names: set[str] = set()
     for node in ast.walk(tree):
@@ -26,6 +29,12 @@ def imported_modules(path: Path, package: str) -> set[str]:
         elif (isinstance(node, ast.Call) and getattr(node.func, "attr", getattr(node.func, "id", None)) == "import_module"
               and node.args and isinstance(node.args[0], ast.Constant) and isinstance(node.args[0].value, str)):
             names.add(node.args[0].value)
+    return names
+
+
+def imported_modules(path: Path, package: str) -> set[str]:
+    """Modules of ``package`` (dotted, e.g. ``uvdose.service``) that the file at ``path`` imports."""
+    names = imported_names(path)
     modules = {path.stem for path in path.parent.glob("*.py")} | \
               {folder.name for folder in path.parent.iterdir() if (folder / "__init__.py").is_file()}
     found = set()
@@ -86,3 +95,20 @@ def test_the_service_has_no_import_circle():
 def test_the_circle_finder_finds_a_circle():
     assert cycles({"a": {"b"}, "b": {"c"}, "c": {"a"}, "d": {"a"}}) == [["a", "b", "c", "a"]]
     assert cycles({"a": {"b"}, "b": set()}) == []
+
+
+def test_the_models_have_no_import_circle():
+    graph = import_graph(REPO / "models", "uvdose.models")
+    assert "clear_sky" in graph["engine"] and "engine" in graph["dose"]  # function-level import seen
+    assert cycles(graph) == []
+
+
+def test_the_models_import_no_web_cache_or_wire_format_library():
+    offending = {}
+    for path in sorted((REPO / "models").rglob("*.py")):
+        bad = sorted(name for name in imported_names(path)
+                     if any(name == f or name.startswith(f + ".") for f in FORBIDDEN_IN_MODELS))
+        if bad:
+            offending[str(path.relative_to(REPO))] = bad
+    assert len(list((REPO / "models").rglob("*.py"))) > 20  # the walk sees the package
+    assert offending == {}
