@@ -14,14 +14,15 @@ worker buy nothing for CPU-bound batches. The app is preloaded in the master
 configuration (say a missing API-key file) stops the server at start, before any worker
 forks.
 
-Settings (environment; defaults in brackets)
---------------------------------------------
-``UVDOSE_BIND`` [``127.0.0.1:8080``; the container image sets ``0.0.0.0:8080``],
-``UVDOSE_WORKERS`` [2], ``UVDOSE_THREADS`` [4], ``UVDOSE_WORKER_TIMEOUT`` seconds a
-request may run before its worker is restarted [120], ``UVDOSE_GRACEFUL_TIMEOUT``
-seconds in-flight requests get to finish after SIGTERM [30], ``UVDOSE_KEEPALIVE``
-seconds [5], ``UVDOSE_MAX_REQUESTS`` requests before a worker is recycled, 0 = never
-[0], ``UVDOSE_PRELOAD`` [on], ``UVDOSE_LOG_LEVEL`` [info].
+Settings
+--------
+From the environment, parsed by ``service/config.py`` (``SERVER_SETTINGS``: the variables,
+their defaults and meanings; README "Configuration"): ``UVDOSE_BIND`` (the container
+image sets ``0.0.0.0:8080``), ``UVDOSE_WORKERS``, ``UVDOSE_THREADS``,
+``UVDOSE_WORKER_TIMEOUT``, ``UVDOSE_GRACEFUL_TIMEOUT``, ``UVDOSE_KEEPALIVE``,
+``UVDOSE_MAX_REQUESTS``, ``UVDOSE_PRELOAD`` and ``UVDOSE_LOG_LEVEL``. They stay out of the
+app's settings because gunicorn takes them before any app exists. A value that cannot be
+used stops gunicorn at start with a message naming the variable.
 
 Metrics: with more than one process, Prometheus samples must be pooled across workers.
 When ``PROMETHEUS_MULTIPROC_DIR`` is unset it is set here to a fresh private directory
@@ -40,52 +41,26 @@ from __future__ import annotations
 
 import os
 import shutil
-import sys
 import tempfile
 from pathlib import Path
 
-# The config sits in deploy/ of the source tree (also inside the image); make the
-# service package importable for the log formatter below whatever the working directory.
-_SOURCE_ROOT = str(Path(__file__).resolve().parent.parent)
-if _SOURCE_ROOT not in sys.path:
-    sys.path.insert(0, _SOURCE_ROOT)
+from uvdose.service import config as _config
 
+try:
+    _settings = _config.server_settings_from_environment()
+except _config.ConfigurationError as _error:
+    raise SystemExit(str(_error)) from None
 
-def _int_setting(name: str, default: int, minimum: int) -> int:
-    raw = os.environ.get(name)
-    if raw is None or raw.strip() == "":
-        return default
-    try:
-        value = int(raw)
-    except ValueError:
-        raise SystemExit(f"{name}: must be an integer, got {raw!r}") from None
-    if value < minimum:
-        raise SystemExit(f"{name}: must be at least {minimum}, got {value}")
-    return value
-
-
-def _flag_setting(name: str, default: bool) -> bool:
-    raw = os.environ.get(name)
-    if raw is None or raw.strip() == "":
-        return default
-    lowered = raw.strip().lower()
-    if lowered in {"1", "true", "yes", "on"}:
-        return True
-    if lowered in {"0", "false", "no", "off"}:
-        return False
-    raise SystemExit(f"{name}: must be on or off, got {raw!r}")
-
-
-bind = [os.environ.get("UVDOSE_BIND", "127.0.0.1:8080")]
-workers = _int_setting("UVDOSE_WORKERS", 2, 1)
+bind = [_settings["UVDOSE_BIND"]]
+workers = _settings["UVDOSE_WORKERS"]
 worker_class = "gthread"
-threads = _int_setting("UVDOSE_THREADS", 4, 1)
-timeout = _int_setting("UVDOSE_WORKER_TIMEOUT", 120, 1)
-graceful_timeout = _int_setting("UVDOSE_GRACEFUL_TIMEOUT", 30, 1)
-keepalive = _int_setting("UVDOSE_KEEPALIVE", 5, 0)
-max_requests = _int_setting("UVDOSE_MAX_REQUESTS", 0, 0)
+threads = _settings["UVDOSE_THREADS"]
+timeout = _settings["UVDOSE_WORKER_TIMEOUT"]
+graceful_timeout = _settings["UVDOSE_GRACEFUL_TIMEOUT"]
+keepalive = _settings["UVDOSE_KEEPALIVE"]
+max_requests = _settings["UVDOSE_MAX_REQUESTS"]
 max_requests_jitter = max_requests // 10
-preload_app = _flag_setting("UVDOSE_PRELOAD", True)
+preload_app = _settings["UVDOSE_PRELOAD"]
 # Heartbeat files on tmpfs: on overlay filesystems a slow write can get a busy worker killed.
 worker_tmp_dir = "/dev/shm" if os.path.isdir("/dev/shm") else None
 proc_name = "uvdose"
@@ -94,9 +69,7 @@ proc_name = "uvdose"
 control_socket_disable = True
 
 accesslog = None
-loglevel = os.environ.get("UVDOSE_LOG_LEVEL", "info").strip().lower()
-if loglevel not in {"debug", "info", "warning", "error", "critical"}:
-    raise SystemExit(f"UVDOSE_LOG_LEVEL: must be debug, info, warning, error or critical, got {loglevel!r}")
+loglevel = _settings["UVDOSE_LOG_LEVEL"].lower()
 logconfig_dict = {
     "version": 1,
     "disable_existing_loggers": False,

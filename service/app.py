@@ -11,11 +11,12 @@ from uvdose.service.config import settings_from_environment
 
 
 def create_app(config: dict[str, Any] | None = None) -> Flask:
-    """Build the Flask app. Settings come from the environment (see README), then ``config``."""
+    """Build the Flask app. Every service setting comes from the environment (see README,
+    "Configuration") unless ``config`` gives it under its config key; both are parsed by
+    :mod:`service.config`. Other entries of ``config`` (say ``TESTING``) pass as given."""
     app = Flask(__name__)
-    app.config.from_mapping(settings_from_environment())
-    if config:
-        app.config.from_mapping(config)
+    app.config.from_mapping(config or {})
+    app.config.from_mapping(settings_from_environment(overrides=config))
     # Responses are built by the service itself; keep Flask's JSON compact and in key order.
     app.json.compact = True
     app.json.sort_keys = False

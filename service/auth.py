@@ -9,7 +9,7 @@ no set-up. Keys come from either or both of
   key or ``sha256:<64 hex digits>``, the SHA-256 of the key (FIPS 180-4), so the
   file need not hold the keys themselves.
 
-Settings are read from ``app.config`` first, then the environment. Keys are kept in
+Both settings are parsed with the others by :mod:`service.config`. Keys are kept in
 memory only as SHA-256 digests. A presented key is hashed and compared with every
 stored digest by :func:`hmac.compare_digest` (constant time per comparison, and all
 digests are compared, so timing does not tell which or how many matched).
@@ -29,13 +29,13 @@ from __future__ import annotations
 
 import hashlib
 import hmac
-import os
 import re
 from dataclasses import dataclass
 from pathlib import Path
 
 from flask import Flask, g, request
 
+from uvdose.service.config import ConfigurationError
 from uvdose.service.problems import TYPE_PREFIX, problem_response
 
 OPEN_PATHS = frozenset({"/livez", "/readyz", "/metrics", "/openapi.yaml", "/docs"})
@@ -45,7 +45,7 @@ _HEX_DIGEST = re.compile(r"[0-9a-fA-F]{64}")
 _BEARER = re.compile(r"Bearer[ \t]+(\S+)[ \t]*", re.IGNORECASE)
 
 
-class ApiKeyConfigError(ValueError):
+class ApiKeyConfigError(ConfigurationError):
     """The configured key list or key file cannot be used."""
 
 
@@ -93,20 +93,13 @@ class KeyRing:
         return matched
 
 
-def _setting(app: Flask, name: str) -> str | None:
-    value = app.config.get(name)
-    if value is None:
-        value = os.environ.get(name)
-    return value or None
-
-
 def load_key_ring(app: Flask) -> KeyRing:
     """Read ``UVDOSE_API_KEYS`` and ``UVDOSE_API_KEYS_FILE`` into a :class:`KeyRing`."""
     digests: list[bytes] = []
-    inline = _setting(app, "UVDOSE_API_KEYS")
+    inline = app.config["UVDOSE_API_KEYS"]
     if inline:
         digests += parse_key_entries(inline.split(","), "UVDOSE_API_KEYS")
-    key_file = _setting(app, "UVDOSE_API_KEYS_FILE")
+    key_file = app.config["UVDOSE_API_KEYS_FILE"]
     if key_file:
         try:
             text = Path(key_file).read_text(encoding="utf-8")

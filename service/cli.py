@@ -2,9 +2,9 @@
 
 ``uvdose serve``
     Run the service under gunicorn: with ``deploy/gunicorn.conf.py`` when the source tree
-    has it (the container's configuration), else with built-in defaults (2 workers,
-    127.0.0.1:8080, pooled Prometheus metrics). Everything else comes from the
-    environment (README, "Configuration").
+    has it (the container's configuration), else with the same server settings read here
+    (``UVDOSE_BIND``, ``UVDOSE_WORKERS``, …; pooled Prometheus metrics). Everything comes
+    from the environment (README, "Configuration"; parsed by ``service/config.py``).
 ``uvdose batch IN OUT``
     Run a CSV or JSON batch file through the same schemas and engine offline, in chunks,
     with a progress bar on stderr. The format of each file follows its extension
@@ -32,6 +32,15 @@ EXIT_INVALID = 2
 
 
 def _default_server_settings(own_metrics_dir: str | None) -> dict[str, Any]:
+    """gunicorn settings without a config file: the same variables as
+    ``deploy/gunicorn.conf.py`` (``config.SERVER_SETTINGS``), the same defaults."""
+    from uvdose.service.config import ConfigurationError, server_settings_from_environment
+
+    try:
+        settings = server_settings_from_environment()
+    except ConfigurationError as error:
+        raise SystemExit(str(error)) from None
+
     def child_exit(server, worker):
         from prometheus_client import multiprocess
 
@@ -42,12 +51,17 @@ def _default_server_settings(own_metrics_dir: str | None) -> dict[str, Any]:
             shutil.rmtree(own_metrics_dir, ignore_errors=True)
 
     return {
-        "bind": ["127.0.0.1:8080"],
-        "workers": 2,
+        "bind": [settings["UVDOSE_BIND"]],
+        "workers": settings["UVDOSE_WORKERS"],
         "worker_class": "gthread",
-        "threads": 4,
-        "timeout": 120,
-        "graceful_timeout": 30,
+        "threads": settings["UVDOSE_THREADS"],
+        "timeout": settings["UVDOSE_WORKER_TIMEOUT"],
+        "graceful_timeout": settings["UVDOSE_GRACEFUL_TIMEOUT"],
+        "keepalive": settings["UVDOSE_KEEPALIVE"],
+        "max_requests": settings["UVDOSE_MAX_REQUESTS"],
+        "max_requests_jitter": settings["UVDOSE_MAX_REQUESTS"] // 10,
+        "preload_app": settings["UVDOSE_PRELOAD"],
+        "loglevel": settings["UVDOSE_LOG_LEVEL"].lower(),
         "accesslog": None,
         "child_exit": child_exit,
         "on_exit": on_exit,

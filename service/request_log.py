@@ -28,7 +28,7 @@ ids, no query strings, no client address, no API keys, no ``Authorization`` head
 ``pid``            worker process id
 =================  ==============================================================
 
-Settings (``app.config`` first, then the environment): ``UVDOSE_REQUEST_LOG``
+Settings (parsed with the others by :mod:`service.config`): ``UVDOSE_REQUEST_LOG``
 (``on``/``off``, default ``on``) and ``UVDOSE_LOG_LEVEL`` (``debug`` … ``critical``,
 default ``info``); any other value stops the app at start with a message naming it.
 :class:`JsonLogFormatter` is also what ``deploy/gunicorn.conf.py`` uses for the
@@ -120,35 +120,6 @@ def accepted_request_id(value: str | None) -> str | None:
     return None
 
 
-LOG_LEVELS = ("DEBUG", "INFO", "WARNING", "ERROR", "CRITICAL")
-_ON, _OFF = {"on", "1", "true", "yes"}, {"off", "0", "false", "no"}
-
-
-class LogSettingsError(ValueError):
-    """A logging setting holds a value that cannot be used."""
-
-
-def _setting(app: Flask, name: str, default: str) -> str:
-    value = app.config.get(name)
-    if value is None:
-        value = os.environ.get(name, default)
-    return str(value).strip()
-
-
-def _request_log_enabled(app: Flask) -> bool:
-    value = _setting(app, "UVDOSE_REQUEST_LOG", "on").lower()
-    if value not in _ON | _OFF:
-        raise LogSettingsError(f"UVDOSE_REQUEST_LOG must be on or off, got {value!r}")
-    return value in _ON
-
-
-def _log_level(app: Flask) -> str:
-    value = _setting(app, "UVDOSE_LOG_LEVEL", "INFO").upper()
-    if value not in LOG_LEVELS:
-        raise LogSettingsError(f"UVDOSE_LOG_LEVEL must be one of {', '.join(LOG_LEVELS)}, got {value!r}")
-    return value
-
-
 class _StandardStreamHandler(logging.StreamHandler):
     """Writes to ``sys.stdout`` or ``sys.stderr`` as they are at each emit, not at set-up."""
 
@@ -184,8 +155,8 @@ def configure_logger(logger: logging.Logger, level: str, stream_name: str) -> lo
 
 def init_app(app: Flask) -> None:
     """Install request-id handling and the per-request JSON log line on ``app``."""
-    enabled = _request_log_enabled(app)
-    level = _log_level(app)
+    enabled = app.config["UVDOSE_REQUEST_LOG"]
+    level = app.config["UVDOSE_LOG_LEVEL"]
     logger = configure_logger(logging.getLogger(REQUEST_LOGGER_NAME), level, "stdout")
     # The app's other messages (unhandled exceptions and the like) go to the root
     # logger. Under gunicorn, deploy/gunicorn.conf.py gives it a JSON handler; when

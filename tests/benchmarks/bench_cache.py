@@ -7,9 +7,15 @@ once, its orchards spread over 500 distinct cells of 0.05° × 2 min. Printed:
 
 1. Key building alone (quantise, pack, dedupe, split into keys) for 10 000 records,
    against a baseline of one ``hashlib.blake2b`` per record in a Python loop.
-2. ``compute_through`` with the real engine, cold and warm, for the Redis and the
+2. The stores against the libraries they could be (the figures quoted beside
+   ``service/cache/memory_store.py`` and ``redis_store.py``): the in-process store's
+   ``get_many``/``set_many`` of 10 000 keys against ``cachetools`` (``LRUCache`` holding
+   (expiry, value) pairs, ``TTLCache``, ``TLRUCache``) behind the same lock; the Redis
+   store's hand-packed pipelines (500 and 10 000 ``SET … PX``; MGET of them) against
+   redis-py's ``pipeline(transaction=False)`` and ``Redis.mget``.
+3. ``compute_through`` with the real engine, cold and warm, for the Redis and the
    in-process backends, against the uncached engine call on the same records.
-3. The same through HTTP: ``POST /v1/irradiance`` on one gunicorn worker on loopback
+4. The same through HTTP: ``POST /v1/irradiance`` on one gunicorn worker on loopback
    (one worker so that the in-process cache is the one asked twice), cold and warm.
    Target: warm/cold ≥ 5× for both backends. Run twice: with the default aerosol (the
    engine's precomputed-table path, a few microseconds a cell, so HTTP parsing and
@@ -18,7 +24,9 @@ once, its orchards spread over 500 distinct cells of 0.05° × 2 min. Printed:
    dedupe (500 engine rows for 10 000 records), so the uncached (UVDOSE_CACHE=off) run is
    printed too, with the uncached/warm ratio.
 
-Redis comes from $REDIS_URL or 127.0.0.1:6379; its database 15 is flushed.
+Redis is the server at $REDIS_URL or 127.0.0.1:6379. The benchmark claims a database of
+its own there the way the test suite does (``tests/redis_claim.py``: one of 1–15, empty,
+never database 0), flushes only that one and gives it back empty at the end.
 """
 from __future__ import annotations
 
@@ -30,6 +38,7 @@ import socket
 import statistics
 import subprocess
 import sys
+import threading
 import time
 import urllib.request
 from datetime import datetime, timezone
@@ -40,10 +49,14 @@ import numpy as np
 REPO = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(REPO))
 
-from uvdose.service.cache import GridCellCache, _distinct_rows, _split_rows  # noqa: E402
+from uvdose.service.cache import GridCellCache  # noqa: E402
+from uvdose.service.cache.byte_rows import distinct_rows, split_rows  # noqa: E402
+from uvdose.service.cache.memory_store import MemoryStore  # noqa: E402
+from uvdose.service.cache.redis_store import RedisStore  # noqa: E402
+from tests.redis_claim import RedisDatabase, claim_database  # noqa: E402
 from timing import best_of  # noqa: E402  (this folder; see timing.py)
 
-REDIS_URL = os.environ.get("REDIS_URL", "redis://127.0.0.1:6379/15")
+REDIS_SERVER_URL = os.environ.get("REDIS_URL", "redis://127.0.0.1:6379")
 CONTEXT = "bench:spectra=erythema,actinic_icnirp,plant_damage"
 
 
@@ -69,9 +82,9 @@ def bench_keys(columns: dict[str, np.ndarray], repeats: int) -> None:
 
     def ours():
         indices, _ = cache.grid.quantise(columns)
-        matrix = cache._key_matrix(indices, CONTEXT)
-        first, _ = _distinct_rows(matrix)
-        _split_rows(matrix[first])
+        matrix = cache.key_rows(indices, CONTEXT)
+        first, _ = distinct_rows(matrix)
+        split_rows(matrix[first])
 
     def loop_baseline():
         stacked = np.column_stack([columns[k] for k in sorted(columns)])
@@ -84,21 +97,110 @@ def bench_keys(columns: dict[str, np.ndarray], repeats: int) -> None:
           f" ratio {baseline / measured:.1f}x)")
 
 
-def bench_direct(columns: dict[str, np.ndarray], repeats: int) -> None:
+class _LibraryStore:
+    """``get_many``/``set_many`` over a ``cachetools`` cache, behind a lock as ours is."""
+
+    def __init__(self, cache, ttl_s: float | None = None, clock=time.monotonic):
+        self.cache, self.ttl_s, self.clock = cache, ttl_s, clock
+        self.lock = threading.Lock()
+
+    def get_many(self, keys):
+        with self.lock:
+            get = self.cache.get
+            if self.ttl_s is None:  # the cache expires entries itself
+                return [get(key) for key in keys]
+            now, found = self.clock(), []
+            for key in keys:
+                entry = get(key)
+                found.append(None if entry is None or entry[0] <= now else entry[1])
+            return found
+
+    def set_many(self, keys, values, layout_key, layout):
+        with self.lock:
+            if self.ttl_s is None:
+                for key, value in zip(keys, values):
+                    self.cache[key] = value
+                return
+            expires = self.clock() + self.ttl_s
+            for key, value in zip(keys, values):
+                self.cache[key] = (expires, value)
+
+
+def bench_memory_store(repeats: int, count: int = 10_000) -> None:
+    try:
+        import cachetools
+    except ImportError:
+        print("cachetools not installed: in-process store comparison skipped")
+        return
+    rng = np.random.default_rng(7)
+    keys = [rng.bytes(90) for _ in range(count)]
+    values = [rng.bytes(80) for _ in range(count)]
+    ttl_s = 86_400.0
+    candidates = {
+        "ours (OrderedDict)": lambda bound: MemoryStore(bound, ttl_s),
+        "cachetools.LRUCache": lambda bound: _LibraryStore(cachetools.LRUCache(bound), ttl_s),
+        "cachetools.TTLCache": lambda bound: _LibraryStore(cachetools.TTLCache(bound, ttl_s, timer=time.monotonic)),
+        "cachetools.TLRUCache": lambda bound: _LibraryStore(
+            cachetools.TLRUCache(bound, lambda key, value, now: now + ttl_s, timer=time.monotonic)),
+    }
+    print(f"in-process store, {count} keys of 90 bytes (best of {repeats}):")
+    baseline = None
+    for name, make in candidates.items():
+        store = make(5 * count)
+        written = best_of(repeats, lambda: store.set_many(keys, values, b"l", b"[]"))
+        read = best_of(repeats, lambda: store.get_many(keys))
+        evicting_store = make(count // 2)
+        evicting = best_of(repeats, lambda: evicting_store.set_many(keys, values, b"l", b"[]"))
+        figures = (written, read, evicting)
+        baseline = baseline or figures
+        ratios = "/".join(f"{f / b:.1f}" for f, b in zip(figures, baseline))
+        print(f"  {name:22s} set_many {written * 1e3:6.2f} ms, get_many {read * 1e3:6.2f} ms,"
+              f" set_many evicting {evicting * 1e3:6.2f} ms; against ours {ratios}x")
+
+
+def bench_redis_store(database: RedisDatabase, repeats: int) -> None:
+    store = RedisStore(database.url, 86_400.0, 0.25, 5.0)
+    client = store.client
+    client.ping()
+    rng = np.random.default_rng(8)
+    print(f"Redis store against redis-py on the claimed database {database.db} (best of {repeats}):")
+    for count in (500, 10_000):
+        keys = [b"uvdose:c:" + rng.bytes(80) for _ in range(count)]
+        values = [rng.bytes(80) for _ in range(count)]
+
+        def pipeline_sets():
+            pipeline = client.pipeline(transaction=False)
+            pipeline.set(b"uvdose:l:bench", b"[]", px=store.ttl_ms)
+            for key, value in zip(keys, values):
+                pipeline.set(key, value, px=store.ttl_ms)
+            pipeline.execute()
+
+        ours_set = best_of(repeats, lambda: store.set_many(keys, values, b"uvdose:l:bench", b"[]"))
+        theirs_set = best_of(repeats, pipeline_sets)
+        ours_get = best_of(repeats, lambda: store.get_many(keys))
+        theirs_get = best_of(repeats, lambda: client.mget(keys))
+        print(f"  {count:6d} SET … PX: packed here {ours_set * 1e3:7.2f} ms, redis-py pipeline"
+              f" {theirs_set * 1e3:7.2f} ms ({theirs_set / ours_set:.1f}x);"
+              f" MGET: here {ours_get * 1e3:6.2f} ms, Redis.mget {theirs_get * 1e3:6.2f} ms"
+              f" ({theirs_get / ours_get:.1f}x)")
+        database.flush()
+
+
+def bench_direct(columns: dict[str, np.ndarray], repeats: int, database: RedisDatabase) -> None:
     from uvdose.models import engine
 
     def compute(cols):
         return engine.compute(engine.Conditions.from_columns(cols)).as_columns()
 
     compute({k: v[:50] for k, v in columns.items()})  # load tables once
-    # First use in a process imports the metrics helpers (flask, prometheus_client).
+    # A first compute_through warms numpy's and the engine's lazy set-up.
     GridCellCache("memory").compute_through(scenario(20, 5, seed=3), compute, "bench:warm-up")
     uncached = best_of(1, lambda: compute(columns))
     print(f"engine, uncached, {len(columns['time_unix_s'])} records: {uncached * 1e3:.1f} ms")
     for backend in ("redis", "memory"):
-        cache = GridCellCache(backend, redis_url=REDIS_URL)
+        cache = GridCellCache(backend, redis_url=database.url)
         if backend == "redis":
-            cache.store.client.flushdb()
+            database.flush()
         cold = best_of(1, lambda: cache.compute_through(columns, compute, CONTEXT))
         warm = best_of(repeats, lambda: cache.compute_through(columns, compute, CONTEXT))
         print(f"compute_through {backend:6s}: cold {cold * 1e3:7.1f} ms, warm {warm * 1e3:6.1f} ms,"
@@ -107,7 +209,7 @@ def bench_direct(columns: dict[str, np.ndarray], repeats: int) -> None:
             client = cache.store.client
             sizes = [client.memory_usage(k) for k in client.scan_iter(b"uvdose:c:*", count=1000)][:200]
             print(f"  Redis MEMORY USAGE per cell (engine defaults, no spectrum): median {statistics.median(sizes):.0f} B")
-            client.flushdb()
+            database.flush()
 
 
 def _free_port() -> int:
@@ -137,7 +239,8 @@ def _body(columns: dict[str, np.ndarray], aerosol: dict[str, float] | None = Non
     return json.dumps({"columns": body}).encode()
 
 
-def bench_http(columns: dict[str, np.ndarray], repeats: int, aerosol: dict[str, float] | None = None) -> None:
+def bench_http(columns: dict[str, np.ndarray], repeats: int, database: RedisDatabase,
+               aerosol: dict[str, float] | None = None) -> None:
     body = _body(columns, aerosol)
     warmup = _body(scenario(200, 50, seed=1), aerosol)
     print("HTTP, " + ("client aerosol (full solve per cell)" if aerosol
@@ -147,7 +250,7 @@ def bench_http(columns: dict[str, np.ndarray], repeats: int, aerosol: dict[str, 
         port = _free_port()
         # The uncached client-aerosol run sends all 10 000 records to the full solve, past the
         # service's default bound on such records per request: lift it for the measurement.
-        env = {**os.environ, "UVDOSE_CACHE": backend, "REDIS_URL": REDIS_URL,
+        env = {**os.environ, "UVDOSE_CACHE": backend, "REDIS_URL": database.url,
                "UVDOSE_MAX_FULL_SOLVE_RECORDS": "100000"}
         env.pop("PROMETHEUS_MULTIPROC_DIR", None)
         process = subprocess.Popen(
@@ -167,9 +270,7 @@ def bench_http(columns: dict[str, np.ndarray], repeats: int, aerosol: dict[str, 
                         raise RuntimeError("gunicorn did not start")
                     time.sleep(0.2)
             if backend == "redis":
-                import redis
-
-                redis.Redis.from_url(REDIS_URL).flushdb()
+                database.flush()
             _post(base + "/v1/irradiance", warmup)  # loads the engine's tables in the worker
             status, cold = _post(base + "/v1/irradiance", body)
             warm = min(_post(base + "/v1/irradiance", body)[1] for _ in range(repeats))
@@ -191,16 +292,23 @@ def main() -> None:
     parser.add_argument("--cells", type=int, default=500)
     parser.add_argument("--repeats", type=int, default=3)
     parser.add_argument("--skip-http", action="store_true")
+    parser.add_argument("--stores-only", action="store_true", help="only the store comparisons (part 2)")
     args = parser.parse_args()
     columns = scenario(args.records, args.cells)
-    bench_keys(columns, args.repeats)
+    database = claim_database(REDIS_SERVER_URL)
     try:
-        bench_direct(columns, args.repeats)
-    except ImportError as error:
-        print(f"engine not importable yet ({error}); direct benchmark skipped")
-    if not args.skip_http:
-        bench_http(columns, args.repeats)
-        bench_http(columns, args.repeats, CLIENT_AEROSOL)
+        if not args.stores_only:
+            bench_keys(columns, args.repeats)
+        bench_memory_store(max(args.repeats, 7))
+        bench_redis_store(database, max(args.repeats, 7))
+        if args.stores_only:
+            return
+        bench_direct(columns, args.repeats, database)
+        if not args.skip_http:
+            bench_http(columns, args.repeats, database)
+            bench_http(columns, args.repeats, database, CLIENT_AEROSOL)
+    finally:
+        database.release()
 
 
 if __name__ == "__main__":

@@ -16,8 +16,8 @@ import pytest
 import redis
 
 from uvdose import models
-from uvdose.service import cache as cache_module
-from uvdose.service.cache import INPUT_RESOLUTIONS, CacheSettingsError, CellGrid, GridCellCache, cache_from_settings
+from uvdose.service.cache import INPUT_RESOLUTIONS, CellGrid, GridCellCache, breaker, build_cache, byte_rows, grid_cell_cache
+from uvdose.service.config import ConfigurationError, settings_from_environment
 
 CONTEXT = "spectra=erythema,plant_damage;filter=none;spectrum=no"
 SPECTRAL_COLUMNS = 5
@@ -154,9 +154,9 @@ def test_other_inputs_round_to_their_resolution_and_keep_not_given():
 
 
 def test_grid_refuses_a_cell_that_does_not_tile_the_globe():
-    with pytest.raises(CacheSettingsError, match="UVDOSE_CELL_DEG"):
+    with pytest.raises(ConfigurationError, match="UVDOSE_CELL_DEG"):
         CellGrid(cell_deg=0.07)
-    with pytest.raises(CacheSettingsError, match="UVDOSE_CELL_MINUTES"):
+    with pytest.raises(ConfigurationError, match="UVDOSE_CELL_MINUTES"):
         CellGrid(cell_minutes=0)
 
 
@@ -242,8 +242,8 @@ def test_an_empty_batch_goes_to_the_engine_without_a_fault(any_cache):
 
 def test_distinct_rows_survive_a_check_collision(monkeypatch):
     matrix = np.array([[1, 2], [3, 4], [1, 2], [5, 6]], dtype=np.uint8)
-    monkeypatch.setattr(cache_module, "_row_checks", lambda rows: np.zeros(len(rows), dtype=np.uint64))
-    first, inverse = cache_module._distinct_rows(matrix)
+    monkeypatch.setattr(byte_rows, "row_checks", lambda rows: np.zeros(len(rows), dtype=np.uint64))
+    first, inverse = byte_rows.distinct_rows(matrix)
     np.testing.assert_array_equal(matrix[first][inverse], matrix)
     assert len(first) == 3
 
@@ -394,17 +394,23 @@ def test_a_value_corrupted_in_the_store_is_recomputed_not_served(redis_client):
 
 # -- settings ----------------------------------------------------------------------------
 
+def built(**environ: str) -> GridCellCache:
+    """The cache ``create_app`` would build for this environment."""
+    return build_cache(settings_from_environment(environ))
+
+
 def test_settings_choose_the_backend(monkeypatch, redis_url):
     monkeypatch.delenv("REDIS_URL", raising=False)
     monkeypatch.delenv("UVDOSE_CACHE", raising=False)
-    assert cache_from_settings({}).backend == "memory"
-    assert cache_from_settings({"REDIS_URL": redis_url}).backend == "redis"
-    assert cache_from_settings({"REDIS_URL": redis_url, "UVDOSE_CACHE": "memory"}).backend == "memory"
-    assert cache_from_settings({"UVDOSE_CACHE": "off"}).backend == "off"
+    assert built().backend == "memory"
+    assert built(REDIS_URL=redis_url).backend == "redis"
+    assert built(REDIS_URL=redis_url, UVDOSE_CACHE="memory").backend == "memory"
+    assert built(UVDOSE_CACHE="off").backend == "off"
+    assert built(UVDOSE_CACHE="none").backend == "off"
     monkeypatch.setenv("UVDOSE_CELL_MINUTES", "5")
     monkeypatch.setenv("UVDOSE_CACHE_MAX_ENTRIES", "7")
-    built = cache_from_settings({})
-    assert built.grid.cell_minutes == 5.0 and built.store.max_entries == 7
+    from_environment = build_cache(settings_from_environment())
+    assert from_environment.grid.cell_minutes == 5.0 and from_environment.store.max_entries == 7
 
 
 @pytest.mark.parametrize("name, value", [
@@ -415,14 +421,14 @@ def test_settings_choose_the_backend(monkeypatch, redis_url):
     ("UVDOSE_CACHE_MAX_ENTRIES", "0"),
 ])
 def test_a_bad_setting_is_refused_by_name(name, value):
-    with pytest.raises(CacheSettingsError, match=name):
-        cache_from_settings({name: value})
+    with pytest.raises(ConfigurationError, match=name):
+        built(**{name: value})
 
 
 def test_redis_mode_without_url_is_refused(monkeypatch):
     monkeypatch.delenv("REDIS_URL", raising=False)
-    with pytest.raises(CacheSettingsError, match="REDIS_URL"):
-        cache_from_settings({"UVDOSE_CACHE": "redis"})
+    with pytest.raises(ConfigurationError, match="REDIS_URL"):
+        built(UVDOSE_CACHE="redis")
 
 
 def test_status_reports_backend_and_whether_it_answers(redis_client):
@@ -443,11 +449,22 @@ def test_counts_and_latency_reach_the_prometheus_metrics(redis_client):
         return REGISTRY.get_sample_value("uvdose_cache_operation_duration_seconds_count") or 0.0
 
     before = metrics.CACHE_EVENTS.labels(event="miss")._value.get()
-    GridCellCache("memory").compute_through(batch(30, cells=3), RecordingEngine(), CONTEXT)
+    built(UVDOSE_CACHE="memory").compute_through(batch(30, cells=3), RecordingEngine(), CONTEXT)
     assert metrics.CACHE_EVENTS.labels(event="miss")._value.get() - before == 3
-    cache = GridCellCache("redis", redis_url=_url_of(redis_client))
+    cache = built(UVDOSE_CACHE="redis", REDIS_URL=_url_of(redis_client))
     cache.status()
     latencies_before = observed()
     cache.compute_through(batch(30, cells=3), RecordingEngine(), CONTEXT)
     assert observed() - latencies_before == 2  # one read, one write
-    assert cache_module.log.name == "uvdose.cache"
+    assert grid_cell_cache.log.name == breaker.log.name == "uvdose.cache"
+
+
+def test_observers_hear_every_outcome_and_backend_call():
+    heard, latencies = [], []
+    cache = GridCellCache("memory", count=lambda event, amount: heard.append((event, amount)),
+                          observe_latency=latencies.append)
+    columns = batch(30, cells=3)
+    cache.compute_through(columns, RecordingEngine(), CONTEXT)
+    cache.compute_through(columns, RecordingEngine(), CONTEXT)
+    assert heard == [("miss", 3), ("hit", 3)]
+    assert len(latencies) == 3 and all(seconds >= 0 for seconds in latencies)  # read, write, read

@@ -22,7 +22,8 @@ import pytest
 import redis
 
 from uvdose.service.app import create_app
-from uvdose.service.cache import GridCellCache, _Breaker
+from uvdose.service.cache import GridCellCache
+from uvdose.service.cache.breaker import Breaker
 from tests.service.test_cache import CONTEXT, RecordingEngine, assert_same, batch, expected
 
 pytestmark = pytest.mark.skipif(shutil.which("redis-server") is None, reason="needs the redis-server binary")
@@ -175,7 +176,7 @@ def test_nothing_listening_is_a_fast_fault():
 
 def test_breaker_backoff_doubles_and_resets():
     now = [100.0]
-    breaker = _Breaker(initial_s=1.0, max_s=3.0, clock=lambda: now[0])
+    breaker = Breaker(initial_s=1.0, max_s=3.0, clock=lambda: now[0])
     assert breaker.allow()
     breaker.failure(OSError("refused"))
     assert not breaker.allow()

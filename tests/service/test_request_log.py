@@ -7,10 +7,10 @@ import pytest
 from flask import g, jsonify, request
 
 from uvdose.service.app import create_app
+from uvdose.service.config import ConfigurationError
 from uvdose.service.request_log import (
     REQUEST_ID_HEADER,
     REQUEST_ID_MAX_LENGTH,
-    LogSettingsError,
     ServerLogRedaction,
     json_handler,
 )
@@ -168,7 +168,7 @@ def test_creating_many_apps_does_not_duplicate_lines(capsys):
 
 @pytest.mark.parametrize("name, value", [("UVDOSE_REQUEST_LOG", "sometimes"), ("UVDOSE_LOG_LEVEL", "loud")])
 def test_unusable_log_settings_stop_start_up_naming_the_variable(name, value):
-    with pytest.raises(LogSettingsError, match=name):
+    with pytest.raises(ConfigurationError, match=name):
         create_app({name: value})
 
 
