@@ -38,7 +38,7 @@ def init_app(app: Flask) -> None:
     (with gunicorn's preload, once before the workers fork), not on the first request."""
     if OZONE_EXTENSION not in app.extensions:
         app.extensions[OZONE_EXTENSION] = resolver_for(app)
-    cache.init_app(app)
+    app.extensions[CACHE_EXTENSION] = cache.build_cache(app.config)
     engine_check()
 
 

@@ -26,11 +26,11 @@ One module per part:
 ``memory_store``   the in-process LRU with TTL
 ``redis_store``    Redis, one pipelined round trip per read and per write
 ``grid_cell_cache`` :class:`GridCellCache` and its ``compute_through``
-``build``          :func:`build_cache` from the parsed settings; ``init_app``
+``build``          :func:`build_cache` from the parsed settings (the engine gateway calls it)
 ================== ====================================================================
 """
-from uvdose.service.cache.build import EXTENSION_KEY, build_cache, init_app
+from uvdose.service.cache.build import build_cache
 from uvdose.service.cache.cells import INPUT_RESOLUTIONS, CellGrid, Keying
 from uvdose.service.cache.grid_cell_cache import GridCellCache
 
-__all__ = ["EXTENSION_KEY", "INPUT_RESOLUTIONS", "CellGrid", "GridCellCache", "Keying", "build_cache", "init_app"]
+__all__ = ["INPUT_RESOLUTIONS", "CellGrid", "GridCellCache", "Keying", "build_cache"]

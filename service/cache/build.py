@@ -8,8 +8,6 @@ from uvdose.service.cache.cells import CellGrid
 from uvdose.service.cache.grid_cell_cache import GridCellCache
 from uvdose.service.config import ConfigurationError
 
-EXTENSION_KEY = "uvdose_cache"
-
 
 def build_cache(settings: Mapping[str, Any]) -> GridCellCache:
     """The cache the settings describe, its lookups counted and timed in the metrics.
@@ -38,8 +36,3 @@ def build_cache(settings: Mapping[str, Any]) -> GridCellCache:
         count=metrics.count_cache,
         observe_latency=metrics.observe_cache_latency,
     )
-
-
-def init_app(app) -> None:
-    """Attach the app's cache as ``app.extensions["uvdose_cache"]``."""
-    app.extensions[EXTENSION_KEY] = build_cache(app.config)
