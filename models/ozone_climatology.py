@@ -1,28 +1,36 @@
-"""Embedded total-ozone climatology by latitude, longitude and day of year.
+"""Embedded total-ozone climatologies by latitude, longitude and day of year.
 
-The climatology is the analytic fit of
+Two climatologies, selectable by name (``CLIMATOLOGY_NAMES``):
 
-    Van Heuklon, T. K. (1979). Estimating atmospheric ozone for solar radiation
-    models. Solar Energy 22(1), 63-68. doi:10.1016/0038-092X(79)90060-4
+``"observed"`` (the default)
+    Monthly zonal means of total ozone from the McPeters-Labow ozone profile
+    climatology (sondes and satellite limb profiles of the depleted-era atmosphere),
+    integrated to total columns by ``models/data/build_ozone_climatology_observed.py``
+    and stored in ``models/data/ozone_climatology_observed.npz``: 18 bands 10° wide
+    (nodes at the band centres 85° S … 85° N), one node per calendar month at its
+    centre, no longitude structure. It shows the Antarctic spring depletion and the
+    Arctic spring maximum as observed. The same file carries the 1-sigma day-to-day
+    variability of a day's column about the monthly mean
+    (``climatological_ozone_sigma_fraction``).
 
-(its equation 4 with the coefficients of its Table 1), sampled once onto a
-2.5° latitude × 5° longitude × 5-day table by ``models/data/build_ozone_climatology.py``
-and stored in ``models/data/ozone_climatology.npz`` with its provenance. At run time
-the table is interpolated: bilinear in latitude and longitude, linear in day of year,
-with longitude wrapping across the date line and the year wrapping from its last
-node back to day 1.
+    McPeters, R. D., Labow, G. J. and Logan, J. A. (2007). Ozone climatological
+    profiles for satellite retrieval algorithms. J. Geophys. Res. 112, D05308.
 
-Limits worth knowing:
+``"van_heuklon_1979"``
+    The analytic fit of Van Heuklon, T. K. (1979). Estimating atmospheric ozone for
+    solar radiation models. Solar Energy 22(1), 63-68. doi:10.1016/0038-092X(79)90060-4
+    (its equation 4 with the coefficients of its Table 1), sampled once onto a 2.5°
+    latitude × 5° longitude × 5-day table by ``models/data/build_ozone_climatology.py``
+    (``models/data/ozone_climatology.npz``). It describes the undisturbed (pre-1979)
+    ozone layer: no Antarctic spring depletion, the equator at 235 DU all year,
+    northern mid-latitudes about 10 % high. Its published fit switches its longitude
+    phase at 0° and 180° in the northern hemisphere (jumps up to about 15 DU); the
+    table, sampled at cell centres, ramps across one 5° cell instead.
 
-* The fit describes the undisturbed (pre-1979) climatology. The Antarctic spring
-  depletion that developed after it cannot appear here: spring columns over
-  Antarctica (September-November) are far too high. Polar spring values need a
-  client-supplied column or an operator grid (``models.ozone_grids``).
-* The published fit switches its longitude phase at 0° and 180° in the northern
-  hemisphere, so the fit itself jumps there by up to about 15 DU. The table is
-  sampled at cell centres, never on those meridians, so the interpolated field
-  ramps linearly across one 5° cell instead of jumping.
-* Poleward of the outermost table rows (±88.75°) the row value holds constant.
+At run time a table is interpolated linearly along each axis
+(``models.grid_interpolation``), periodic in day of year (and in longitude where the
+table has more than one longitude), holding the outermost latitude rows constant
+towards the poles.
 """
 from __future__ import annotations
 
@@ -34,6 +42,15 @@ import numpy as np
 from uvdose.models.grid_interpolation import GridAxis, TrilinearGrid
 
 TABLE_PATH = Path(__file__).with_name("data") / "ozone_climatology.npz"
+"""The tabulated Van Heuklon (1979) fit."""
+OBSERVED_TABLE_PATH = Path(__file__).with_name("data") / "ozone_climatology_observed.npz"
+"""The observed monthly zonal means (McPeters-Labow), with day-to-day variability."""
+
+CLIMATOLOGY_PATHS = {"observed": OBSERVED_TABLE_PATH, "van_heuklon_1979": TABLE_PATH}
+CLIMATOLOGY_NAMES = tuple(CLIMATOLOGY_PATHS)
+"""Names of the embedded climatologies."""
+DEFAULT_CLIMATOLOGY = "observed"
+"""The climatology used when a caller names none."""
 
 DAYS_PER_CLIMATOLOGICAL_YEAR = 365.0
 """Period of the table's day-of-year axis. Day-of-year values are 1-based: day 1.0 is
@@ -83,22 +100,24 @@ def van_heuklon_ozone_du(latitude_deg, longitude_deg, day_of_year):
 
 
 class ClimatologyTable:
-    """The tabulated climatology and its interpolation.
+    """A tabulated climatology and its interpolation.
 
-    ``ozone_du`` has shape (days, latitudes, longitudes); the axes are uniform:
-    ``day_nodes`` (1-based day of year, last node followed by the first one a
-    period later), ``latitude_nodes_deg`` (south to north, cell centres),
-    ``longitude_nodes_deg`` (west to east, cell centres spanning the whole circle).
+    ``ozone_du`` has shape (days, latitudes, longitudes) on strictly increasing axes:
+    ``day_nodes`` (1-based day of year within one 365-day year; the last node is
+    followed by the first one a period later; need not be evenly spaced),
+    ``latitude_nodes_deg`` (south to north), ``longitude_nodes_deg`` (either evenly
+    spaced across the whole circle, or one node for a zonal climatology).
+    ``sigma_fraction``, when the table has one, is the 1-sigma relative day-to-day
+    variability on the same nodes.
     """
 
-    def __init__(self, day_nodes, latitude_nodes_deg, longitude_nodes_deg, ozone_du, metadata):
+    def __init__(self, day_nodes, latitude_nodes_deg, longitude_nodes_deg, ozone_du, metadata,
+                 sigma_fraction=None):
         self.day_nodes = np.asarray(day_nodes, dtype=float)
         self.latitude_nodes_deg = np.asarray(latitude_nodes_deg, dtype=float)
         self.longitude_nodes_deg = np.asarray(longitude_nodes_deg, dtype=float)
         self.ozone_du = np.ascontiguousarray(ozone_du, dtype=np.float32)
         self.metadata = dict(metadata)
-        day_step = float(self.day_nodes[1] - self.day_nodes[0])
-        lon_step = float(self.longitude_nodes_deg[1] - self.longitude_nodes_deg[0])
         n_day, n_lat, n_lon = self.ozone_du.shape
         if not (
             n_day == self.day_nodes.size
@@ -106,14 +125,17 @@ class ClimatologyTable:
             and n_lon == self.longitude_nodes_deg.size
         ):
             raise ValueError("climatology table axes do not match its array shape")
-        if not np.isclose(n_lon * lon_step, 360.0):
-            raise ValueError("climatology table longitudes must span the whole circle")
-        if not np.isclose(n_day * day_step, DAYS_PER_CLIMATOLOGICAL_YEAR):
-            raise ValueError("climatology table days must span one 365-day year")
-        self._grid = TrilinearGrid(
-            (GridAxis(self.day_nodes, DAYS_PER_CLIMATOLOGICAL_YEAR), GridAxis(self.latitude_nodes_deg),
-             GridAxis(self.longitude_nodes_deg, 360.0)),
-            self.ozone_du)
+        if n_lon > 1:
+            lon_step = float(self.longitude_nodes_deg[1] - self.longitude_nodes_deg[0])
+            if not np.isclose(n_lon * lon_step, 360.0):
+                raise ValueError("climatology table longitudes must span the whole circle")
+        if not (self.day_nodes[0] >= 1.0 and self.day_nodes[-1] < 1.0 + DAYS_PER_CLIMATOLOGICAL_YEAR):
+            raise ValueError("climatology table days must lie within one 365-day year")
+        axes = (GridAxis(self.day_nodes, DAYS_PER_CLIMATOLOGICAL_YEAR), GridAxis(self.latitude_nodes_deg),
+                GridAxis(self.longitude_nodes_deg, 360.0))
+        self._grid = TrilinearGrid(axes, self.ozone_du)
+        self._sigma_grid = None if sigma_fraction is None else TrilinearGrid(
+            axes, np.ascontiguousarray(sigma_fraction, dtype=np.float32))
 
     @classmethod
     def load(cls, path: Path = TABLE_PATH) -> "ClimatologyTable":
@@ -127,7 +149,12 @@ class ClimatologyTable:
                 data["longitude_nodes_deg"],
                 data["ozone_du"],
                 metadata,
+                data["ozone_sigma_fraction"] if "ozone_sigma_fraction" in data.files else None,
             )
+
+    @property
+    def has_sigma(self) -> bool:
+        return self._sigma_grid is not None
 
     def interpolate(self, latitude_deg, longitude_deg, day_of_year) -> np.ndarray:
         """Trilinear interpolation, periodic in longitude and day (``models.grid_interpolation``).
@@ -138,11 +165,24 @@ class ClimatologyTable:
         """
         return self._grid.interpolate(day_of_year, latitude_deg, longitude_deg)
 
+    def interpolate_sigma(self, latitude_deg, longitude_deg, day_of_year) -> np.ndarray:
+        """The day-to-day relative sigma, interpolated like :meth:`interpolate`."""
+        if self._sigma_grid is None:
+            raise ValueError("this climatology table carries no day-to-day variability")
+        return self._sigma_grid.interpolate(day_of_year, latitude_deg, longitude_deg)
 
-@lru_cache(maxsize=1)
-def climatology_table() -> ClimatologyTable:
-    """The embedded table, loaded once per process."""
-    return ClimatologyTable.load()
+
+def check_climatology(name: str) -> str:
+    """``name`` if it names an embedded climatology, else ValueError listing the names."""
+    if name not in CLIMATOLOGY_PATHS:
+        raise ValueError(f"unknown ozone climatology {name!r}; expected one of {list(CLIMATOLOGY_NAMES)}")
+    return name
+
+
+@lru_cache(maxsize=len(CLIMATOLOGY_PATHS))
+def climatology_table(name: str = DEFAULT_CLIMATOLOGY) -> ClimatologyTable:
+    """The embedded table of climatology ``name``, loaded once per process."""
+    return ClimatologyTable.load(CLIMATOLOGY_PATHS[check_climatology(name)])
 
 
 def _validated(name: str, values, low: float, high: float, high_inclusive: bool) -> np.ndarray:
@@ -159,22 +199,55 @@ def _validated(name: str, values, low: float, high: float, high_inclusive: bool)
     return arr
 
 
-def climatological_ozone_du(latitude_deg, longitude_deg, day_of_year) -> np.ndarray:
-    """Climatological total ozone column [DU] at each record.
-
-    ``latitude_deg`` in [-90, 90] (north positive), ``longitude_deg`` in [-180, 360]
-    (east positive; wrapped), ``day_of_year`` in [1, 367) with 1.0 = 00:00 on 1 January
-    (fractional; use ``day_of_year_from_unix`` for times). Arrays broadcast together.
-
-    Source: Van Heuklon (1979) fit, tabulated (see the module docstring); bilinear in
-    space, linear in day, periodic across the date line and the year boundary.
-    Raises ``ValueError`` naming the offending records for out-of-range or NaN input.
-    """
+def _validated_position(latitude_deg, longitude_deg, day_of_year):
     lat = _validated("latitude_deg", latitude_deg, -90.0, 90.0, True)
     lon = _validated("longitude_deg", longitude_deg, -180.0, 360.0, True)
     day = _validated("day_of_year", day_of_year, 1.0, 367.0, False)
-    lat, lon, day = np.broadcast_arrays(lat, lon, day)
-    return climatology_table().interpolate(lat, lon, day)
+    return np.broadcast_arrays(lat, lon, day)
+
+
+def climatological_ozone_du(latitude_deg, longitude_deg, day_of_year,
+                            climatology: str = DEFAULT_CLIMATOLOGY) -> np.ndarray:
+    """Climatological total ozone column [DU] at each record.
+
+    Parameters
+    ----------
+    latitude_deg : array, [-90, 90], north positive.
+    longitude_deg : array, [-180, 360], east positive (wrapped).
+    day_of_year : array, [1, 367), 1.0 = 00:00 on 1 January (fractional; use
+        ``day_of_year_from_unix`` for times). Arrays broadcast together.
+    climatology : one of ``CLIMATOLOGY_NAMES`` (see the module docstring).
+
+    Raises ``ValueError`` naming the offending records for out-of-range or NaN input.
+
+    References
+    ----------
+    .. [1] McPeters, R. D., Labow, G. J. and Logan, J. A. (2007). Ozone climatological
+       profiles for satellite retrieval algorithms. J. Geophys. Res. 112, D05308.
+    .. [2] Van Heuklon, T. K. (1979). Estimating atmospheric ozone for solar radiation
+       models. Solar Energy 22(1), 63-68.
+    """
+    table = climatology_table(check_climatology(climatology))
+    return table.interpolate(*_validated_position(latitude_deg, longitude_deg, day_of_year))
+
+
+def climatological_ozone_sigma_fraction(latitude_deg, longitude_deg, day_of_year,
+                                        climatology: str = DEFAULT_CLIMATOLOGY) -> np.ndarray:
+    """1-sigma relative deviation of a day's true column from climatology ``climatology``.
+
+    For ``"observed"``: the day-to-day variability about the monthly mean stored with
+    the table (from memory of the literature; see its build script). For
+    ``"van_heuklon_1979"``: that variability combined in quadrature with the fit's
+    relative difference from the observed monthly means at the record (its bias).
+    Arguments as for :func:`climatological_ozone_du`.
+    """
+    position = _validated_position(latitude_deg, longitude_deg, day_of_year)
+    observed = climatology_table("observed")
+    sigma = observed.interpolate_sigma(*position)
+    if check_climatology(climatology) == "observed":
+        return sigma
+    bias = climatology_table(climatology).interpolate(*position) / observed.interpolate(*position) - 1.0
+    return np.hypot(sigma, bias)
 
 
 def _days_to_1_january(year: np.ndarray) -> np.ndarray:

@@ -47,7 +47,8 @@ from pathlib import Path
 import numpy as np
 
 from uvdose.models.grid_interpolation import GridAxis, TrilinearGrid
-from uvdose.models.ozone_climatology import climatological_ozone_du, day_of_year_from_unix
+from uvdose.models.ozone_climatology import (DEFAULT_CLIMATOLOGY, check_climatology, climatological_ozone_du,
+                                             day_of_year_from_unix)
 
 PLAUSIBLE_OZONE_DU = (50.0, 700.0)
 """Accepted range for any total-ozone column [DU], grid or client; the same range the
@@ -119,6 +120,12 @@ class OzoneGrid:
     @property
     def label(self) -> str:
         return GRID_SOURCE_PREFIX + self.name
+
+    @property
+    def period_kind(self) -> str:
+        """``"day"`` for daily values, ``"month"`` for monthly means."""
+        first = self._periods.end_s[0] - self._periods.start_s[0]
+        return "day" if first <= _SECONDS_PER_DAY else "month"
 
     @property
     def time_span_unix_s(self) -> tuple[float, float]:
@@ -348,10 +355,21 @@ def _check_axis(where, name, nodes) -> None:
 
 
 class OzoneResolver:
-    """Per-record total ozone: client value, else the first covering grid, else climatology."""
+    """Per-record total ozone: client value, else the first covering grid, else climatology.
 
-    def __init__(self, grids=()):
+    ``climatology`` names the embedded climatology of the last step
+    (``models.ozone_climatology.CLIMATOLOGY_NAMES``).
+    """
+
+    def __init__(self, grids=(), climatology: str = DEFAULT_CLIMATOLOGY):
         self.grids = list(grids)
+        self.climatology = check_climatology(climatology)
+
+    def with_climatology(self, climatology: str | None) -> "OzoneResolver":
+        """The same grids with another climatology (``None``: this resolver itself)."""
+        if climatology is None or climatology == self.climatology:
+            return self
+        return OzoneResolver(self.grids, climatology)
 
     @classmethod
     def from_paths(cls, paths) -> "OzoneResolver":
@@ -376,15 +394,16 @@ class OzoneResolver:
         Put it in a cache context: a result cached under one set of grids must not be
         served after the operator changes them (the climatology is covered by MODEL_VERSION).
         """
+        suffix = "" if self.climatology == DEFAULT_CLIMATOLOGY else f";climatology={self.climatology}"
         if not self.grids:
-            return "none"
+            return "none" + suffix
         digest = hashlib.sha256()
         for grid in self.grids:
             digest.update(grid.name.encode())
             for array in (grid._periods.start_s, grid._periods.end_s, grid.latitude_deg,
                           grid.longitude_deg, grid.ozone_du):
                 digest.update(np.ascontiguousarray(array, dtype=float).tobytes())
-        return digest.hexdigest()[:16]
+        return digest.hexdigest()[:16] + suffix
 
     def describe(self) -> list[dict]:
         """Name and coverage of each loaded grid, in resolution order."""
@@ -446,7 +465,7 @@ class OzoneResolver:
             pending[hit] = False
         if pending.any():
             ozone[pending] = climatological_ozone_du(
-                lat[pending], lon[pending], day_of_year_from_unix(t[pending])
+                lat[pending], lon[pending], day_of_year_from_unix(t[pending]), self.climatology
             )
         return ozone, labels
 

@@ -16,7 +16,7 @@ results without a new ``MODEL_VERSION``; the cache adds ``MODEL_VERSION`` itself
 from __future__ import annotations
 
 import time
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any, Callable, Mapping, Sequence
 
 import numpy as np
@@ -118,10 +118,29 @@ class Gateway:
     def _resolver(self) -> OzoneResolver:
         return self.ozone_resolver if self.ozone_resolver is not None else default_resolver()
 
+    def with_ozone_climatology(self, name: str | None) -> "Gateway":
+        """This gateway with the embedded climatology ``name`` (``None``: unchanged); the
+        resolver's fingerprint, and so the cache context, names a non-default choice."""
+        if name is None or name == self._resolver().climatology:
+            return self
+        return replace(self, ozone_resolver=self._resolver().with_climatology(name))
+
+    def reference_ozone(self, latitude_deg, longitude_deg, time_unix_s) -> np.ndarray:
+        """The climatological column (DU) of this gateway's climatology, grids ignored."""
+        from uvdose.models.ozone_climatology import climatological_ozone_du, day_of_year_from_unix
+
+        return climatological_ozone_du(latitude_deg, longitude_deg, day_of_year_from_unix(time_unix_s),
+                                       self._resolver().climatology)
+
     def ozone(self, latitude_deg: np.ndarray, longitude_deg: np.ndarray,
               time_unix_s: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """(total ozone DU, source) the engine would use for records that give none."""
         return self._resolver().resolve(latitude_deg, longitude_deg, time_unix_s, None)
+
+    @property
+    def ozone_climatology(self) -> str:
+        """Name of the embedded climatology this gateway's resolver falls back to."""
+        return self._resolver().climatology
 
     def ozone_grids(self) -> list[dict]:
         """The operator grids the resolver consults, in order."""
@@ -132,11 +151,12 @@ OFFLINE = Gateway()
 """The offline ``uvdose batch``: the engine's default resolver, no cache, no full-solve bound."""
 
 
-def current() -> Gateway:
-    """The current app's gateway (inside a request or an app context)."""
+def current(ozone_climatology: str | None = None) -> Gateway:
+    """The current app's gateway (inside a request or an app context), with the request's
+    ``ozone_climatology`` option if it gives one."""
     app = current_app
     return Gateway(app.extensions.get(OZONE_EXTENSION), app.extensions.get(CACHE_EXTENSION),
-                   app.config["UVDOSE_MAX_FULL_SOLVE_RECORDS"])
+                   app.config["UVDOSE_MAX_FULL_SOLVE_RECORDS"]).with_ozone_climatology(ozone_climatology)
 
 
 def default_spectra() -> list[str]:

@@ -17,6 +17,7 @@ from uvdose.service.cautions import CAUTION
 from uvdose.service.engine_gateway import Gateway
 from uvdose.service.problems import FieldError, Problem
 from uvdose.service.record_fields import (
+    OZONE_CLIMATOLOGY_OPTION,
     SPECTRA_OPTION,
     ConditionsRecordSchema,
     OptionsSchema,
@@ -42,6 +43,7 @@ class IrradianceOptionsSchema(OptionsSchema):
 
     spectra = SPECTRA_OPTION
     include_spectrum = StrictBoolean(load_default=False)
+    ozone_climatology = OZONE_CLIMATOLOGY_OPTION
 
 
 _SCALAR_OUTPUTS = (

@@ -280,3 +280,14 @@ SPECTRA_OPTION = fields.List(
     validate=[validate.Length(min=1, max=8, error="must name between {min} and {max} spectra"), _distinct_names],
     error_messages={"invalid": "must be an array of spectrum names"})
 """The request-wide ``spectra`` option: action-spectrum names, 1 to 8, each once."""
+
+
+def _climatology_names() -> Iterable[str]:
+    from uvdose.models.ozone_climatology import CLIMATOLOGY_NAMES
+
+    return CLIMATOLOGY_NAMES
+
+
+OZONE_CLIMATOLOGY_OPTION = Text(validate=OneOfRegistry(_climatology_names, "ozone climatology"))
+"""The request-wide ``ozone_climatology`` option: which embedded climatology supplies the
+column of records that give none and no operator grid covers (default ``observed``)."""

@@ -50,6 +50,7 @@ from uvdose.service.record_fields import (
     LONGITUDE,
     OZONE_COLUMN,
     RECORD_ID,
+    OZONE_CLIMATOLOGY_OPTION,
     SPECTRA_OPTION,
     SURFACE_ALBEDO,
     ConditionsRecordSchema,
@@ -109,6 +110,7 @@ class DoseOptionsSchema(OptionsSchema):
     step_s = StrictNumber(validate=between(dose.MIN_STEP_S, dose.MAX_STEP_S))
     glazing = Text(validate=OneOfRegistry(lambda: filters.FILTERS.keys(), "glazing"))
     transmittance_curve = fields.Nested(CurveSchema)
+    ozone_climatology = OZONE_CLIMATOLOGY_OPTION
 
 
 def _options_problem(field: str, reason: str) -> Problem:
@@ -218,7 +220,7 @@ def windows() -> Response:
     spectra = list(options.get("spectra") or DEFAULT_WINDOW_SPECTRA)
     step_s = float(options.get("step_s") or dose.DEFAULT_WINDOW_STEP_S)
     transmittance, label = _transmittance(options)
-    evaluate = engine_gateway.current().dose_evaluator(spectra, transmittance, label, "windows")
+    evaluate = engine_gateway.current(options.get("ozone_climatology")).dose_evaluator(spectra, transmittance, label, "windows")
     try:
         out = dose.window_doses(cols, start, end, evaluate, step_s=step_s, spectra=spectra)
     except ValueError as error:
@@ -349,10 +351,12 @@ def field_doses() -> Response:
     quadrature = (dict(day_quadrature="trapezoid", step_s=float(step_s)) if step_s is not None
                   else dict(day_quadrature="gauss_legendre"))
     transmittance, label = _transmittance(options)
-    evaluate = engine_gateway.current().dose_evaluator(spectra, transmittance, label, "fields")
+    gateway = engine_gateway.current(options.get("ozone_climatology"))
+    evaluate = gateway.dose_evaluator(spectra, transmittance, label, "fields")
     try:
         season = dose.field_season(batch.columns, days, evaluate, ozone_du=ozone,
-                                   cloud_modification_factor=cmf, spectra=spectra, **quadrature)
+                                   cloud_modification_factor=cmf, spectra=spectra,
+                                   reference_ozone=gateway.reference_ozone, **quadrature)
     except ValueError as error:
         raise _model_problem(error) from None
     metrics.count_records(FIELDS_ROUTE, len(batch))
@@ -582,7 +586,7 @@ def route_doses() -> Response:
     side = options.get("driver_side") or "left"
     cutoff = float(options.get("roof_cutoff_elevation_deg", vehicle_routes.DEFAULT_ROOF_CUTOFF_ELEVATION_DEG))
     sky_view = float(options.get("cab_sky_view_factor", vehicle_routes.DEFAULT_CAB_SKY_VIEW_FACTOR))
-    evaluate = engine_gateway.current().dose_evaluator(spectra, transmittance, label, "routes")
+    evaluate = engine_gateway.current(options.get("ozone_climatology")).dose_evaluator(spectra, transmittance, label, "routes")
     try:
         out = vehicle_routes.route_doses(points, evaluate, per_route=per_route, driver_side=side,
                                          step_s=step_s, roof_cutoff_elevation_deg=cutoff,

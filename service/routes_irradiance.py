@@ -28,7 +28,7 @@ def irradiance() -> Response:
     batch, options = batch_request.batch, batch_request.options
     spectra = options.get("spectra") or engine_gateway.default_spectra()
     columns, wavelength_nm, spectrum = irradiance_batch.compute(
-        engine_gateway.current(), batch.columns, batch.ids, spectra, options["include_spectrum"])
+        engine_gateway.current(options.get("ozone_climatology")), batch.columns, batch.ids, spectra, options["include_spectrum"])
     metrics.count_records(ROUTE, len(batch))
     if media_type == CSV_MEDIA_TYPE:
         return csv_response(irradiance_batch.csv_columns(columns, wavelength_nm, spectrum))

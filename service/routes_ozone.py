@@ -24,6 +24,7 @@ from uvdose.service.cautions import OZONE_CAUTION
 from uvdose.service.record_fields import (
     LATITUDE,
     LONGITUDE,
+    OZONE_CLIMATOLOGY_OPTION,
     RECORD_ID,
     TIME_SPAN_MESSAGE,
     IsoDate,
@@ -60,12 +61,14 @@ class OzoneRecordSchema(RecordSchema):
     one_of_fields = (("time_unix_s", "date_unix_s"),)
 
 
-class _NoOptions(OptionsSchema):
-    """POST /v1/ozone takes no request-wide options."""
+class OzoneOptionsSchema(OptionsSchema):
+    """Request-wide options of ``POST /v1/ozone``."""
+
+    ozone_climatology = OZONE_CLIMATOLOGY_OPTION
 
 
 _SCHEMA = OzoneRecordSchema()
-_OPTIONS = _NoOptions()
+_OPTIONS = OzoneOptionsSchema()
 
 
 @blueprint.post(ROUTE)
@@ -79,7 +82,7 @@ def lookup_ozone() -> Response:
     n = len(ids)
     time_s = columns.get("time_unix_s", np.full(n, np.nan))
     time_s = np.where(np.isnan(time_s), columns.get("date_unix_s", np.full(n, np.nan)) + _NOON_S, time_s)
-    gateway = engine_gateway.current()
+    gateway = engine_gateway.current(batch_request.options.get("ozone_climatology"))
     ozone_du, sources = gateway.ozone(columns["latitude_deg"], columns["longitude_deg"], time_s)
     out = {
         "id": ids.tolist(),
@@ -94,6 +97,7 @@ def lookup_ozone() -> Response:
         "model_version": MODEL_VERSION,
         "caution": OZONE_CAUTION,
         "ozone_grids": gateway.ozone_grids(),
+        "ozone_climatology": gateway.ozone_climatology,
     }
     if batch_request.layout == "columns":
         body["columns"] = out

@@ -1,4 +1,7 @@
-"""The embedded total-ozone climatology against its source and against known facts."""
+"""The 1979 fit climatology ("van_heuklon_1979") against its source and known facts.
+
+The observed default climatology has its own tests (test_ozone_climatology_observed.py
+for the table, the end of this file for its run-time interpolation)."""
 import numpy as np
 import pytest
 from scipy.interpolate import RegularGridInterpolator
@@ -11,6 +14,11 @@ from uvdose.models.ozone_climatology import (
 )
 
 DAYS = np.arange(1.0, 366.0)
+FIT = "van_heuklon_1979"
+
+
+def fit_ozone(latitude_deg, longitude_deg, day_of_year):
+    return climatological_ozone_du(latitude_deg, longitude_deg, day_of_year, FIT)
 
 
 def _unix(iso):
@@ -20,7 +28,7 @@ def _unix(iso):
 def _zonal_mean(latitude_deg, days):
     lon = np.arange(-180.0, 180.0, 5.0)
     lat, lon, day = np.meshgrid(latitude_deg, lon, days, indexing="ij")
-    return climatological_ozone_du(lat, lon, day).mean()
+    return fit_ozone(lat, lon, day).mean()
 
 
 # ---------------------------------------------------------------- the fit itself
@@ -48,26 +56,26 @@ def test_fit_equator_is_coefficient_j():
 
 # ------------------------------------------------------------------- the table
 def test_table_carries_its_provenance():
-    meta = climatology_table().metadata
+    meta = climatology_table(FIT).metadata
     assert "Van Heuklon" in meta["source"] and "Solar Energy 22" in meta["source"]
     assert "Antarctic" in meta["caveat"]
-    assert climatology_table().ozone_du.dtype == np.float32
+    assert climatology_table(FIT).ozone_du.dtype == np.float32
 
 
 def test_table_nodes_equal_the_fit():
-    table = climatology_table()
+    table = climatology_table(FIT)
     day, lat, lon = np.meshgrid(
         table.day_nodes, table.latitude_nodes_deg, table.longitude_nodes_deg, indexing="ij"
     )
     expected = van_heuklon_ozone_du(lat, lon, day)
     assert np.allclose(table.ozone_du, expected, atol=1e-4)
-    assert np.allclose(climatological_ozone_du(lat, lon, day), expected, atol=1e-4)
+    assert np.allclose(fit_ozone(lat, lon, day), expected, atol=1e-4)
 
 
 def test_interpolation_matches_scipy_on_the_periodic_table():
     # Reference: scipy's RegularGridInterpolator (linear) on the table padded with
     # its wrap-around column and day plane.
-    table = climatology_table()
+    table = climatology_table(FIT)
     values = np.concatenate([table.ozone_du, table.ozone_du[:1]], axis=0)
     values = np.concatenate([values, values[:, :, :1]], axis=2).astype(float)
     reference = RegularGridInterpolator(
@@ -84,7 +92,7 @@ def test_interpolation_matches_scipy_on_the_periodic_table():
     lon = rng.uniform(-180.0, 180.0, n)
     day = rng.uniform(1.0, 366.0, n)
     lon_ref = np.where(lon < table.longitude_nodes_deg[0], lon + 360.0, lon)
-    got = climatological_ozone_du(lat, lon, day)
+    got = fit_ozone(lat, lon, day)
     want = reference(np.column_stack([day, lat, lon_ref]))
     assert np.max(np.abs(got - want)) < 1e-6
 
@@ -96,7 +104,7 @@ def test_interpolated_field_stays_close_to_the_fit_away_from_its_jumps():
     lat = rng.uniform(-88.0, 88.0, 20000)
     lon = rng.uniform(-170.0, -10.0, 20000)
     day = rng.uniform(1.0, 365.0, 20000)
-    assert np.max(np.abs(climatological_ozone_du(lat, lon, day) - van_heuklon_ozone_du(lat, lon, day))) < 1.0
+    assert np.max(np.abs(fit_ozone(lat, lon, day) - van_heuklon_ozone_du(lat, lon, day))) < 1.0
 
 
 # ------------------------------------------------------- facts of the field
@@ -109,7 +117,7 @@ def test_tropical_columns_roughly_240_to_300_du_all_year():
     # and the 12.5-20 degree belts must sit inside 240-300 DU.
     lon = np.arange(-180.0, 180.0, 5.0)
     lat, lon, day = np.meshgrid(np.arange(-20.0, 20.1, 2.5), lon, DAYS, indexing="ij")
-    ozone = climatological_ozone_du(lat, lon, day)
+    ozone = fit_ozone(lat, lon, day)
     assert ozone.min() >= 230.0 and ozone.max() <= 300.0
     belts = np.abs(lat) >= 12.5
     assert ozone[belts].min() >= 240.0
@@ -138,7 +146,7 @@ def test_southern_midlatitude_spring_maximum():
 def test_global_area_weighted_mean_near_300_du():
     # Global mean total ozone is about 300 DU (WMO/UNEP assessments, common
     # textbook figure, from memory); accept 285-315 DU.
-    table = climatology_table()
+    table = climatology_table(FIT)
     weights = np.cos(np.radians(table.latitude_nodes_deg))
     zonal_annual = table.ozone_du.mean(axis=(0, 2))
     mean = float(np.sum(zonal_annual * weights) / np.sum(weights))
@@ -157,7 +165,7 @@ def test_global_area_weighted_mean_near_300_du():
 def test_station_annual_means_within_12_percent(station, lat, lon, annual_mean_du):
     # A coarse check only: the fit runs high at northern mid-latitudes (~+10 % at
     # Arosa) and low in the tropics (see the tropical test); 12 % bounds both.
-    mean = climatological_ozone_du(lat, lon, DAYS).mean()
+    mean = fit_ozone(lat, lon, DAYS).mean()
     assert mean == pytest.approx(annual_mean_du, rel=0.12), station
 
 
@@ -166,7 +174,7 @@ def test_pre_depletion_climatology_shows_no_antarctic_ozone_hole():
     # 1980s often fall below 220 DU (the usual threshold of depleted areas: common
     # practice, no source); this pre-1979 fit stays well above it, so such records
     # need client or operator values.
-    ozone = climatological_ozone_du(np.full(12, -80.0), np.linspace(-180, 150, 12), 288.0)
+    ozone = fit_ozone(np.full(12, -80.0), np.linspace(-180, 150, 12), 288.0)
     assert ozone.min() > 220.0
 
 
@@ -174,27 +182,27 @@ def test_pre_depletion_climatology_shows_no_antarctic_ozone_hole():
 def test_smooth_across_year_boundary():
     lat = np.array([-60.0, -30.0, 30.0, 50.0, 70.0])
     lon = np.array([-100.0, 10.0, 60.0, -5.0, 140.0])
-    end_of_year = climatological_ozone_du(lat, lon, 365.9999)
-    start_of_year = climatological_ozone_du(lat, lon, 1.0)
+    end_of_year = fit_ozone(lat, lon, 365.9999)
+    start_of_year = fit_ozone(lat, lon, 1.0)
     assert np.max(np.abs(end_of_year - start_of_year)) < 0.01
     # day 366 of a leap year continues the same wrap
-    assert np.allclose(climatological_ozone_du(lat, lon, 366.5), climatological_ozone_du(lat, lon, 1.5))
+    assert np.allclose(fit_ozone(lat, lon, 366.5), fit_ozone(lat, lon, 1.5))
 
 
 def test_smooth_across_the_date_line():
     lat = np.linspace(-85.0, 85.0, 35)
-    east = climatological_ozone_du(lat, 179.9999, 80.0)
-    west = climatological_ozone_du(lat, -179.9999, 80.0)
+    east = fit_ozone(lat, 179.9999, 80.0)
+    west = fit_ozone(lat, -179.9999, 80.0)
     assert np.max(np.abs(east - west)) < 0.01
-    assert np.array_equal(climatological_ozone_du(lat, 180.0, 80.0), climatological_ozone_du(lat, -180.0, 80.0))
-    assert np.allclose(climatological_ozone_du(lat, 200.0, 80.0), climatological_ozone_du(lat, -160.0, 80.0))
+    assert np.array_equal(fit_ozone(lat, 180.0, 80.0), fit_ozone(lat, -180.0, 80.0))
+    assert np.allclose(fit_ozone(lat, 200.0, 80.0), fit_ozone(lat, -160.0, 80.0))
 
 
 def test_fit_jump_at_greenwich_becomes_a_ramp_over_one_cell():
     # The published fit jumps at 0 deg in the north (I = 0 west, 20 east); the table
     # turns the jump into a linear ramp between the cell centres at -2.5 and 2.5.
     lon = np.linspace(-2.5, 2.5, 11)
-    ozone = climatological_ozone_du(np.full(11, 48.75), lon, 121.0)
+    ozone = fit_ozone(np.full(11, 48.75), lon, 121.0)
     steps = np.diff(ozone)
     assert np.allclose(steps, steps[0], atol=1e-4)
     assert abs(ozone[-1] - ozone[0]) > 5.0
@@ -202,7 +210,7 @@ def test_fit_jump_at_greenwich_becomes_a_ramp_over_one_cell():
 
 # ------------------------------------------------------- interface behaviour
 def test_vectorised_broadcasting():
-    out = climatological_ozone_du(np.array([[10.0], [50.0]]), np.array([0.0, 90.0, -90.0]), 172.0)
+    out = fit_ozone(np.array([[10.0], [50.0]]), np.array([0.0, 90.0, -90.0]), 172.0)
     assert out.shape == (2, 3)
 
 
@@ -219,7 +227,7 @@ def test_vectorised_broadcasting():
 def test_bad_input_names_field_and_record(args, field):
     lat, lon, day = args
     with pytest.raises(ValueError, match=rf"{field}.*records \[1\]"):
-        climatological_ozone_du([0.0, lat], [0.0, lon], [1.0, day])
+        fit_ozone([0.0, lat], [0.0, lon], [1.0, day])
 
 
 def test_day_of_year_from_unix():
@@ -241,3 +249,56 @@ def test_day_of_year_calendar_arithmetic_matches_numpy_datetimes():
     start = year.astype("datetime64[s]").astype("int64").astype(float)
     end = (year + 1).astype("datetime64[s]").astype("int64").astype(float)
     assert np.allclose(day_of_year_from_unix(t), 1.0 + 365.0 * (t - start) / (end - start), rtol=0, atol=1e-9)
+
+
+# ------------------------------------------ the observed default, at run time
+def test_observed_is_the_default_and_names_are_checked():
+    from uvdose.models.ozone_climatology import CLIMATOLOGY_NAMES, DEFAULT_CLIMATOLOGY
+
+    assert DEFAULT_CLIMATOLOGY == "observed" and set(CLIMATOLOGY_NAMES) == {"observed", FIT}
+    assert "McPeters" in climatology_table().metadata["source"]
+    with pytest.raises(ValueError, match="unknown ozone climatology 'toms'"):
+        climatological_ozone_du(0.0, 0.0, 10.0, "toms")
+
+
+def test_observed_interpolation_reproduces_its_nodes_and_is_zonal():
+    table = climatology_table("observed")
+    day, lat = np.meshgrid(table.day_nodes, table.latitude_nodes_deg, indexing="ij")
+    for lon in (-170.0, 0.0, 95.0, 300.0):
+        assert np.allclose(climatological_ozone_du(lat, lon, day), table.ozone_du[:, :, 0], atol=1e-4)
+    # halfway between two band centres and two month centres: the mean of the corners
+    mid_day = 0.5 * (table.day_nodes[3] + table.day_nodes[4])
+    corners = table.ozone_du[3:5, 10:12, 0].astype(float)
+    assert climatological_ozone_du(20.0, 0.0, mid_day) == pytest.approx(corners.mean(), abs=1e-4)
+
+
+def test_observed_wraps_the_year_and_holds_beyond_the_outer_bands():
+    table = climatology_table("observed")
+    # between the December (350.5) and January (16.5 + 365) centres: linear across New Year
+    january, december = table.ozone_du[0, :, 0].astype(float), table.ozone_du[-1, :, 0].astype(float)
+    at_new_year = climatological_ozone_du(table.latitude_nodes_deg, 0.0, 1.0)
+    weight = (1.0 + 365.0 - 350.5) / (16.5 + 365.0 - 350.5)
+    assert np.allclose(at_new_year, december + weight * (january - december), atol=1e-4)
+    assert np.allclose(climatological_ozone_du(-90.0, 0.0, 288.0), climatological_ozone_du(-85.0, 0.0, 288.0))
+
+
+def test_observed_default_brings_the_antarctic_spring_the_fit_lacks():
+    # Common-practice depletion threshold 220 DU (no source): the default shows it in
+    # mid-October at 80 S, the 1979 fit stays far above it.
+    observed = climatological_ozone_du(-80.0, 0.0, 288.0)
+    assert observed < 220.0 and fit_ozone(-80.0, 0.0, 288.0) > 300.0
+
+
+def test_sigma_of_the_observed_and_of_the_fit():
+    from uvdose.models.ozone_climatology import climatological_ozone_sigma_fraction
+
+    lat = np.array([0.0, 45.0, -80.0])
+    observed = climatological_ozone_sigma_fraction(lat, 0.0, 288.0)
+    table = climatology_table("observed")
+    assert np.all((observed > 0.0) & (observed < 0.25))
+    assert observed[0] < observed[1] < observed[2]
+    # the fit's sigma adds its difference from the observed means in quadrature
+    fit = climatological_ozone_sigma_fraction(lat, 0.0, 288.0, FIT)
+    bias = fit_ozone(lat, 0.0, 288.0) / climatological_ozone_du(lat, 0.0, 288.0) - 1.0
+    assert np.allclose(fit, np.hypot(observed, bias))
+    assert table.has_sigma and not climatology_table(FIT).has_sigma

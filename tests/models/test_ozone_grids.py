@@ -304,3 +304,19 @@ def test_fingerprint_changes_with_the_grids(tmp_path):
     assert OzoneResolver().fingerprint == "none"
     assert OzoneResolver.from_paths([a]).fingerprint == OzoneResolver.from_paths([same]).fingerprint
     assert OzoneResolver.from_paths([a]).fingerprint != OzoneResolver.from_paths([changed]).fingerprint
+
+
+def test_resolver_climatology_by_name_and_its_fingerprint():
+    from uvdose.models.ozone_climatology import climatological_ozone_du as climatology
+
+    lat, lon, t = np.array([-80.0, 45.0]), np.array([0.0, 10.0]), np.full(2, _unix("2026-10-15T12:00:00"))
+    default = OzoneResolver()
+    fit = default.with_climatology("van_heuklon_1979")
+    assert default.climatology == "observed" and default.with_climatology(None) is default
+    day = day_of_year_from_unix(t)
+    assert np.array_equal(default.resolve(lat, lon, t)[0], climatology(lat, lon, day, "observed"))
+    assert np.array_equal(fit.resolve(lat, lon, t)[0], climatology(lat, lon, day, "van_heuklon_1979"))
+    # a cached result under one climatology must not be served under the other
+    assert default.fingerprint == "none" and fit.fingerprint == "none;climatology=van_heuklon_1979"
+    with pytest.raises(ValueError, match="unknown ozone climatology"):
+        OzoneResolver(climatology="satellite")

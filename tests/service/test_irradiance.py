@@ -87,6 +87,23 @@ def test_the_cloud_factor_scales_the_result_and_is_reported(client):
     assert enhanced["uv_index"] == pytest.approx(1.5 * clear["uv_index"], rel=1e-9)
 
 
+def test_ozone_climatology_option_picks_the_column_and_the_cache_keeps_them_apart(client):
+    # The 1979 fit by name, on the same records and the same (cached) app: in mid-October
+    # at 80 S the observed default has the Antarctic depletion (below 220 DU, the common-
+    # practice threshold), the fit does not, so the fit's answer has less UV.
+    polar = {"time": "2026-10-15T12:00:00Z", "lat": -80.0, "lon": 0.0}
+    records = [{**ORCHARD}, polar]
+    default = post(client, {"records": records}).get_json()["results"]
+    fit = post(client, {"records": records, "ozone_climatology": "van_heuklon_1979"}).get_json()["results"]
+    again = post(client, {"records": records}).get_json()["results"]
+    assert default[1]["ozone_du"] < 220.0 < 300.0 < fit[1]["ozone_du"]
+    assert fit[1]["uv_index"] < 0.8 * default[1]["uv_index"]
+    assert again == default
+    csv = client.post(URL + "?ozone_climatology=van_heuklon_1979", data="time,lat,lon\n2026-10-15T12:00:00Z,-80,0\n",
+                      content_type="text/csv", headers={"Accept": "text/csv"})
+    assert csv.status_code == 200 and f"{fit[1]['ozone_du']:.3f}"[:5] in csv.get_data(as_text=True)
+
+
 def test_more_ozone_means_less_uvb_and_the_used_values_are_reported(client):
     # Facts of the trade (common practice, no source): ozone absorbs UVB, barely UVA.
     thin, thick = one(client, ozone_du=250), one(client, ozone_du=400)

@@ -52,9 +52,15 @@ def test_climatology_values_for_instants_and_dates(client):
     expected = climatological_ozone_du([36.0, -33.9, 0.0], [-122.0, 18.4, 179.9], day_of_year_from_unix(times))
     assert [r["ozone_du"] for r in results] == expected.tolist()
     assert {r["ozone_source"] for r in results} == {"climatology"}
-    # Van Heuklon (1979) at 36 N 122 W early July is about 321 DU (worked value, see
-    # tests/models/test_ozone_climatology.py); the table interpolant is within 2 DU.
-    assert results[0]["ozone_du"] == pytest.approx(321.2, abs=2.0)
+    assert body["ozone_climatology"] == "observed"
+    # The 1979 fit by name: Van Heuklon (1979) at 36 N 122 W early July is about
+    # 321 DU (worked value, see tests/models/test_ozone_climatology.py); the table
+    # interpolant is within 2 DU.
+    fit = client.post(ROUTE, json={"records": records, "ozone_climatology": "van_heuklon_1979"}).get_json()
+    assert fit["ozone_climatology"] == "van_heuklon_1979"
+    assert fit["results"][0]["ozone_du"] == pytest.approx(321.2, abs=2.0)
+    unknown = client.post(ROUTE, json={"records": records, "ozone_climatology": "tabulated"})
+    assert unknown.status_code == 422 and "unknown ozone climatology" in unknown.get_data(as_text=True)
 
 
 def test_operator_grid_then_climatology_and_same_resolver(grid_app, contract_client_for):
