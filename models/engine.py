@@ -18,7 +18,7 @@ from typing import Mapping, Sequence
 import numpy as np
 
 from uvdose.models import MODEL_VERSION, action_spectra, clear_sky, optics, receivers, surfaces, uv_index
-from uvdose.models.ozone_grids import OzoneResolver, default_resolver
+from uvdose.models.ozone_grids import OzoneResolver
 from uvdose.models.solar_geometry import solar_position, surface_pressure_hpa
 from uvdose.models.spectral_grid import WAVELENGTH_NM
 
@@ -202,8 +202,8 @@ def compute(
     include_spectrum : also return the spectral irradiance on the receiver (W m⁻² nm⁻¹).
     transmittance : spectral transmittance of a glazing or film on ``WAVELENGTH_NM``,
         shape (W,) or (N, W); ``None`` for an unobstructed receiver.
-    ozone_resolver : where ozone comes from when a record gives none; defaults to
-        :func:`models.ozone_grids.default_resolver` (operator grids, then climatology).
+    ozone_resolver : where ozone comes from when a record gives none; ``None`` means the
+        embedded climatology alone (``OzoneResolver()``; operator grids enter only here).
     method : clear-sky method, see :func:`models.clear_sky.spectral_irradiance`.
     full_solve_budget : bounds the records sent to the full solve (see
         :class:`models.clear_sky.FullSolveBudget`); ``None`` for no bound.
@@ -213,7 +213,7 @@ def compute(
     pressure_hpa = surface_pressure_hpa(elevation_m, c.pressure_hpa)
     sun = solar_position(c.time_unix_s, c.latitude_deg, c.longitude_deg, elevation_m, pressure_hpa)
 
-    resolver = ozone_resolver or default_resolver()
+    resolver = ozone_resolver if ozone_resolver is not None else OzoneResolver()
     ozone_du, ozone_source = resolver.resolve(c.latitude_deg, c.longitude_deg, c.time_unix_s, c.ozone_du)
     surface_albedo = _surface_albedo(c)
 

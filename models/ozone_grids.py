@@ -39,9 +39,7 @@ from __future__ import annotations
 
 import csv
 import hashlib
-import os
 from dataclasses import dataclass
-from functools import lru_cache
 from pathlib import Path
 
 import numpy as np
@@ -54,9 +52,6 @@ PLAUSIBLE_OZONE_DU = (50.0, 700.0)
 """Accepted range for any total-ozone column [DU], grid or client; the same range the
 API enforces on ``ozone_du``. Observed columns lie roughly in 90-600 DU; the margin
 only catches unit mistakes (atm-cm, mol m-2). Common practice, no source."""
-
-GRIDS_ENV_VAR = "UVDOSE_OZONE_GRIDS"
-"""Environment variable: comma-separated paths of operator ozone grid files, tried in order."""
 
 CSV_COLUMNS = ("date", "latitude_deg", "longitude_deg", "ozone_du")
 
@@ -373,19 +368,10 @@ class OzoneResolver:
 
     @classmethod
     def from_paths(cls, paths) -> "OzoneResolver":
+        """Load the grid files ``paths`` (CSV or NetCDF, see the module docstring), tried
+        in the order given; no paths means the climatology only. A file that cannot be
+        used raises ``OzoneGridError`` naming it, rather than being skipped."""
         return cls([OzoneGrid.load(path) for path in paths])
-
-    @classmethod
-    def from_environment(cls, environ=None) -> "OzoneResolver":
-        """Load the grids named in ``UVDOSE_OZONE_GRIDS`` (comma-separated paths, in order).
-
-        Unset or empty means no grids (climatology only). A file that cannot be read
-        raises ``OzoneGridError`` at start-up rather than being skipped.
-        """
-        environ = os.environ if environ is None else environ
-        text = environ.get(GRIDS_ENV_VAR, "")
-        paths = [part.strip() for part in text.split(",") if part.strip()]
-        return cls.from_paths(paths)
 
     @property
     def fingerprint(self) -> str:
@@ -468,12 +454,6 @@ class OzoneResolver:
                 lat[pending], lon[pending], day_of_year_from_unix(t[pending]), self.climatology
             )
         return ozone, labels
-
-
-@lru_cache(maxsize=1)
-def default_resolver() -> OzoneResolver:
-    """The process-wide resolver from ``UVDOSE_OZONE_GRIDS``, loaded once (grids, then climatology)."""
-    return OzoneResolver.from_environment()
 
 
 def _require(bad: np.ndarray, message: str) -> None:

@@ -165,6 +165,7 @@ def run_batch(
     except Problem as problem:
         sys.stderr.write(response_for(problem).get_data(as_text=True) + "\n")
         return EXIT_INVALID
+    gateway = engine_gateway.offline()
     chosen = batch_request.options.get("spectra") or engine_gateway.default_spectra()
     with_spectrum = batch_request.options["include_spectrum"]
     out_type = _media_type(target, output_format)
@@ -176,7 +177,7 @@ def run_batch(
             for start in range(0, n, chunk_size):
                 part = slice(start, min(start + chunk_size, n))
                 columns = {name: values[part] for name, values in all_columns.items()}
-                out, wavelength_nm, spectrum = irr.compute(engine_gateway.OFFLINE, columns, batch.ids[part], chosen,
+                out, wavelength_nm, spectrum = irr.compute(gateway, columns, batch.ids[part], chosen,
                                                            with_spectrum)
                 first = start == 0
                 if out_type == wire_formats.CSV_MEDIA_TYPE:

@@ -5,8 +5,8 @@ full-solve bound, and every engine call, with the cache context that keys its re
 grids from config ``UVDOSE_OZONE_GRIDS``) and the grid-cell cache
 (``app.extensions["uvdose_cache"]``), and loads the engine's precomputed table, so that a
 bad grid file or table fails the start, not a request. In a request, :func:`current`
-gives the :class:`Gateway` of the app; the offline ``uvdose batch`` uses :data:`OFFLINE`
-(the engine's default resolver, no cache, no bound). Blueprints, the catalogue and the
+gives the :class:`Gateway` of the app; the offline ``uvdose batch`` uses :func:`offline`
+(the operator grids of the environment's settings, no cache, no bound). Blueprints, the catalogue and the
 CLI reach the engine only through here.
 
 A cache context holds every request-wide option that changes a result (spectra, spectral
@@ -23,8 +23,9 @@ import numpy as np
 from flask import Flask, current_app
 
 from uvdose.models import clear_sky, dose
-from uvdose.models.ozone_grids import GRIDS_ENV_VAR, OzoneResolver, default_resolver
+from uvdose.models.ozone_grids import OzoneResolver
 from uvdose.service import cache
+from uvdose.service.config import settings_from_environment
 
 OZONE_EXTENSION = "uvdose_ozone"
 CACHE_EXTENSION = "uvdose_cache"
@@ -43,21 +44,24 @@ def init_app(app: Flask) -> None:
 
 
 def resolver_for(app: Flask) -> OzoneResolver:
-    """The app's resolver: grids from config ``UVDOSE_OZONE_GRIDS`` if set, else the process default.
+    """The app's resolver: the grids of config ``UVDOSE_OZONE_GRIDS`` (set from the
+    environment by ``service.config``), then the climatology."""
+    return grid_resolver(app.config.get(GRIDS_CONFIG_KEY))
 
-    The process default (``models.ozone_grids.default_resolver``) reads the
-    ``UVDOSE_OZONE_GRIDS`` environment variable once per process.
-    """
-    if app.config.get(GRIDS_CONFIG_KEY) is not None:
-        return OzoneResolver.from_environment({GRIDS_ENV_VAR: app.config[GRIDS_CONFIG_KEY]})
-    return default_resolver()
+
+def grid_resolver(setting: str | None) -> OzoneResolver:
+    """The resolver for a ``UVDOSE_OZONE_GRIDS`` value: comma-separated grid files, tried in
+    order; unset or empty means the climatology only."""
+    return OzoneResolver.from_paths([part.strip() for part in (setting or "").split(",")
+                                     if part.strip()])
 
 
 @dataclass(frozen=True)
 class Gateway:
     """The engine as one caller sees it.
 
-    ``ozone_resolver`` ``None`` means the engine's default; ``cache`` ``None`` computes every
+    ``ozone_resolver`` ``None`` means the engine's default, the embedded climatology alone;
+    ``cache`` ``None`` computes every
     record; ``max_full_solve_records`` bounds the records one call (one request) may send
     to the full solve, ``None`` for no bound.
     """
@@ -116,7 +120,7 @@ class Gateway:
         return evaluate
 
     def _resolver(self) -> OzoneResolver:
-        return self.ozone_resolver if self.ozone_resolver is not None else default_resolver()
+        return self.ozone_resolver if self.ozone_resolver is not None else OzoneResolver()
 
     def with_ozone_climatology(self, name: str | None) -> "Gateway":
         """This gateway with the embedded climatology ``name`` (``None``: unchanged); the
@@ -147,8 +151,10 @@ class Gateway:
         return self._resolver().describe()
 
 
-OFFLINE = Gateway()
-"""The offline ``uvdose batch``: the engine's default resolver, no cache, no full-solve bound."""
+def offline() -> Gateway:
+    """The offline ``uvdose batch``: the operator grids of ``UVDOSE_OZONE_GRIDS`` as the
+    service reads it from the environment, no cache, no full-solve bound."""
+    return Gateway(ozone_resolver=grid_resolver(settings_from_environment()[GRIDS_CONFIG_KEY]))
 
 
 def current(ozone_climatology: str | None = None) -> Gateway:

@@ -112,3 +112,11 @@ def test_the_models_import_no_web_cache_or_wire_format_library():
             offending[str(path.relative_to(REPO))] = bad
     assert len(list((REPO / "models").rglob("*.py"))) > 20  # the walk sees the package
     assert offending == {}
+
+
+def test_no_models_module_reads_the_environment():
+    # models/ takes its configuration as arguments (DEVELOPERS.md); the service's settings
+    # (service/config.py) read the environment.
+    readers = sorted(str(path.relative_to(REPO)) for path in (REPO / "models").rglob("*.py")
+                     if "os.environ" in (text := path.read_text(encoding="utf-8")) or "getenv" in text)
+    assert readers == []

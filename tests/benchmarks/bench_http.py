@@ -148,13 +148,13 @@ def main() -> None:
     print(f"  parse JSON: orjson {parse_s:.4f} s, json {parse_json_s:.4f} s (json/orjson {parse_json_s / parse_s:.1f}x)")
     print(f"  validate: vectorised column checks (incl. parse) {vector_s:.4f} s, per-record marshmallow "
           f"{per_record_s:.4f} s (marshmallow/vectorised {per_record_s / vector_s:.1f}x)")
-    from uvdose.service.engine_gateway import OFFLINE
+    from uvdose.service.engine_gateway import offline
     from uvdose.service.irradiance_batch import compute, envelope, result_rows
 
     batch = wire_formats.read_batch_bytes(body, "application/json", {}, record_schema=schema, options_schema=options,
                                       max_records=10**9).batch
     spectra = default_spectra()
-    columns, _, _ = compute(OFFLINE, batch.columns, batch.ids, spectra, False)
+    columns, _, _ = compute(offline(), batch.columns, batch.ids, spectra, False)
 
     def rows_payload():
         return {**envelope(spectra, None), "results": result_rows(dict(columns), None)}

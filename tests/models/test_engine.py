@@ -41,6 +41,14 @@ def test_client_ozone_overrides_climatology_and_says_so():
     assert result.uv_index[0] > result.uv_index[2]
 
 
+def test_without_a_resolver_the_engine_uses_the_climatology_whatever_the_environment(monkeypatch):
+    # Operator grids enter as an argument (the service builds the resolver from its
+    # settings); models/ reads no environment variable.
+    monkeypatch.setenv("UVDOSE_OZONE_GRIDS", "/nonexistent/grid.csv")
+    result = engine.compute(_conditions())
+    assert list(result.ozone_source) == ["climatology"] * 3
+
+
 def test_pressure_comes_from_elevation_unless_given():
     result = engine.compute(_conditions(elevation_m=[0.0, 2000.0, 2000.0], pressure_hpa=[np.nan, np.nan, 900.0]))
     assert result.pressure_hpa[0] == pytest.approx(1013.25)

@@ -3,7 +3,7 @@ import numpy as np
 import pytest
 
 from uvdose.models.ozone_climatology import climatological_ozone_du, day_of_year_from_unix
-from uvdose.models.ozone_grids import GRIDS_ENV_VAR, OzoneGrid, OzoneGridError, OzoneResolver
+from uvdose.models.ozone_grids import OzoneGrid, OzoneGridError, OzoneResolver
 
 # An invented regional grid for a demo scenario of our own (values are not data).
 LATS = np.array([40.0, 42.5, 45.0])
@@ -282,15 +282,14 @@ def test_resolver_rejects_bad_records_by_index(lat, lon, t, client, message):
         OzoneResolver().resolve([0.0, lat], [0.0, lon], [0.0, t], [np.nan, client])
 
 
-def test_from_environment(tmp_path):
+def test_from_paths_in_order(tmp_path):
     a = _write_csv(tmp_path / "a.csv", DATES, LATS, LONS, _values())
     b = _write_netcdf(tmp_path / "b.nc", DATES, LATS, LONS, _values())
-    resolver = OzoneResolver.from_environment({GRIDS_ENV_VAR: f"{a}, {b}"})
+    resolver = OzoneResolver.from_paths([a, b])
     assert [g.label for g in resolver.grids] == ["grid:a.csv", "grid:b.nc"]
-    assert OzoneResolver.from_environment({}).grids == []
-    assert OzoneResolver.from_environment({GRIDS_ENV_VAR: " "}).grids == []
+    assert OzoneResolver.from_paths([]).grids == []
     with pytest.raises(OzoneGridError, match="absent.csv"):
-        OzoneResolver.from_environment({GRIDS_ENV_VAR: str(tmp_path / "absent.csv")})
+        OzoneResolver.from_paths([tmp_path / "absent.csv"])
     described = resolver.describe()[0]
     assert described["start"] == "2026-03-01T00:00:00Z" and described["end"] == "2026-03-05T00:00:00Z"
 

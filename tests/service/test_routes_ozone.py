@@ -175,6 +175,22 @@ def test_unreadable_operator_grid_fails_at_start_up(make_app, tmp_path):
         make_app(UVDOSE_OZONE_GRIDS=str(bad))
 
 
+def test_grids_named_in_the_environment_reach_the_app_and_the_offline_batch(monkeypatch, tmp_path):
+    # README "Total ozone": UVDOSE_OZONE_GRIDS, comma-separated, tried in order.
+    from uvdose.service import engine_gateway
+    from uvdose.service.app import create_app
+
+    first = _write_grid(tmp_path / "lowlands_april.csv")
+    second = _write_grid(tmp_path / "lowlands_copy.csv")
+    monkeypatch.setenv("UVDOSE_OZONE_GRIDS", f"{first}, {second}")
+    expected = ["grid:lowlands_april.csv", "grid:lowlands_copy.csv"]
+    app = create_app({"TESTING": True})
+    assert [grid.label for grid in app.extensions["uvdose_ozone"].grids] == expected
+    assert [grid.label for grid in engine_gateway.offline().ozone_resolver.grids] == expected
+    monkeypatch.setenv("UVDOSE_OZONE_GRIDS", "")
+    assert create_app({"TESTING": True}).extensions["uvdose_ozone"].grids == []
+
+
 @pytest.mark.gunicorn
 def test_served_by_gunicorn(gunicorn_server):
     payload = json.dumps({"records": [{"id": "g", "lat": 45.0, "lon": 7.0, "date": "2026-06-21"}]}).encode()
