@@ -13,7 +13,7 @@ the 10-minute default), which daily totals avoid by integrating between those in
 
 Irradiance comes from an *evaluator*: a function from a dict of per-sample input
 columns (the names of ``models.engine.Conditions``) to a dict of result columns
-(``EngineResult.as_columns()`` names, e.g. ``"effective_w_m2.erythema"``).
+(``EngineResult.as_columns()`` names, e.g. ``engine.effective_column("erythema")``).
 :func:`engine_evaluator` wraps the engine; the service wraps that in its cache;
 tests pass synthetic ones. Samples are evaluated in chunks of bounded size.
 
@@ -32,12 +32,12 @@ from typing import Callable, Mapping, Sequence
 
 import numpy as np
 
+from uvdose.models import engine
 from uvdose.models.solar_geometry import HORIZON_REFRACTION_DEG, sunrise_transit_sunset
 
 Columns = dict[str, np.ndarray]
 Evaluator = Callable[[Columns], Columns]
 
-EFFECTIVE_PREFIX = "effective_w_m2."
 DEFAULT_WINDOW_STEP_S = 600.0
 """Default step for time windows (10 min)."""
 DEFAULT_DAY_STEP_S = 1200.0
@@ -55,8 +55,6 @@ def engine_evaluator(spectra: Sequence[str], transmittance=None, method: str = "
                      ozone_resolver=None, full_solve_budget=None) -> Evaluator:
     """Evaluator that runs ``models.engine.compute`` on sample columns (one
     ``full_solve_budget``, if given, shared by every call)."""
-    from uvdose.models import engine
-
     def evaluate(columns: Columns) -> Columns:
         result = engine.compute(engine.Conditions.from_columns(columns), spectra=tuple(spectra),
                                 transmittance=transmittance, ozone_resolver=ozone_resolver,
@@ -151,10 +149,6 @@ def gauss_legendre_nodes(start_unix_s, end_unix_s, n: int) -> Nodes:
     return Nodes(times, window, weights, np.zeros(times.size, bool))
 
 
-def _effective_names(result: Columns) -> list[str]:
-    return [k[len(EFFECTIVE_PREFIX):] for k in result if k.startswith(EFFECTIVE_PREFIX)]
-
-
 def integrate(nodes: Nodes, per_window: Mapping[str, np.ndarray], n_windows: int,
               evaluate: Evaluator, skip: np.ndarray | None = None,
               per_node: Mapping[str, np.ndarray] | None = None,
@@ -177,8 +171,8 @@ def integrate(nodes: Nodes, per_window: Mapping[str, np.ndarray], n_windows: int
     weight = nodes.weight_s[use]
     end_node = np.cumsum(np.bincount(nodes.window, minlength=n_windows)) - 1
     doses, final = {}, {}
-    for name in (_effective_names(result) if spectra is None else spectra):
-        rate = result.get(EFFECTIVE_PREFIX + name, np.zeros(owner.size))
+    for name in (engine.effective_names(result) if spectra is None else spectra):
+        rate = result.get(engine.effective_column(name), np.zeros(owner.size))
         doses[name] = np.bincount(owner, weights=weight * rate, minlength=n_windows)
         at_nodes = np.zeros(nodes.window.size)
         at_nodes[use] = rate

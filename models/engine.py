@@ -30,6 +30,29 @@ DEFAULT_SURFACE_ALBEDO = 0.05
 and most soils reflect a few per cent of UV (WHO 2002 Practical Guide: grass, soil and
 water reflect less than 10 %); 0.05 is common practice, no source."""
 
+EFFECTIVE_PREFIX = "effective_w_m2."
+"""Result columns (``EngineResult.as_columns``) of effective irradiance, W m⁻², are named
+this prefix plus the action spectrum's name: :func:`effective_column`."""
+SPECTRUM_PREFIX = "spectrum_w_m2_nm."
+"""Result columns of the spectral irradiance, W m⁻² nm⁻¹, are named this prefix plus the
+wavelength's index on ``WAVELENGTH_NM``: :func:`spectrum_column`."""
+
+
+def effective_column(spectrum_name: str) -> str:
+    """Result-column name of the effective irradiance weighted by ``spectrum_name``."""
+    return EFFECTIVE_PREFIX + spectrum_name
+
+
+def spectrum_column(index: int) -> str:
+    """Result-column name of the spectral irradiance at wavelength index ``index``."""
+    return f"{SPECTRUM_PREFIX}{index}"
+
+
+def effective_names(columns: Mapping[str, object]) -> list[str]:
+    """Action-spectrum names of the effective-irradiance columns among ``columns``, in order."""
+    return [key[len(EFFECTIVE_PREFIX):] for key in columns if key.startswith(EFFECTIVE_PREFIX)]
+
+
 _BANDS = ("uvb", "uva")
 _FLOAT_FIELDS = (
     "time_unix_s",
@@ -126,22 +149,19 @@ class EngineResult:
     wavelength_nm: np.ndarray = field(default_factory=lambda: WAVELENGTH_NM)
     model_version: str = MODEL_VERSION
 
-    _EFFECTIVE_PREFIX = "effective_w_m2."
-    _SPECTRUM_PREFIX = "spectrum_w_m2_nm."
-
     def as_columns(self) -> dict[str, np.ndarray]:
-        """Flatten to a dict of (N,) arrays (effective values as ``effective_w_m2.<name>``,
-        spectrum columns as ``spectrum_w_m2_nm.<index>``)."""
+        """Flatten to a dict of (N,) arrays: effective values under :func:`effective_column`
+        names, spectrum columns under :func:`spectrum_column` names, the rest by field name."""
         columns: dict[str, np.ndarray] = {}
         for f in fields(self):
             value = getattr(self, f.name)
             if f.name == "effective_w_m2":
                 for name, column in value.items():
-                    columns[self._EFFECTIVE_PREFIX + name] = column
+                    columns[effective_column(name)] = column
             elif f.name == "spectrum_w_m2_nm":
                 if value is not None:
                     for index in range(value.shape[1]):
-                        columns[f"{self._SPECTRUM_PREFIX}{index}"] = value[:, index]
+                        columns[spectrum_column(index)] = value[:, index]
             elif f.name not in ("wavelength_nm", "model_version"):
                 columns[f.name] = value
         return columns
@@ -149,14 +169,10 @@ class EngineResult:
     @classmethod
     def from_columns(cls, columns: Mapping[str, np.ndarray]) -> "EngineResult":
         """Inverse of :meth:`as_columns`."""
-        effective = {
-            key[len(cls._EFFECTIVE_PREFIX):]: value
-            for key, value in columns.items()
-            if key.startswith(cls._EFFECTIVE_PREFIX)
-        }
+        effective = {name: columns[effective_column(name)] for name in effective_names(columns)}
         spectrum_keys = sorted(
-            (key for key in columns if key.startswith(cls._SPECTRUM_PREFIX)),
-            key=lambda key: int(key[len(cls._SPECTRUM_PREFIX):]),
+            (key for key in columns if key.startswith(SPECTRUM_PREFIX)),
+            key=lambda key: int(key[len(SPECTRUM_PREFIX):]),
         )
         spectrum = np.column_stack([columns[key] for key in spectrum_keys]) if spectrum_keys else None
         plain = {

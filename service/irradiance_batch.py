@@ -13,6 +13,7 @@ from typing import Any, Mapping
 import numpy as np
 
 from uvdose.models import MODEL_VERSION, clouds
+from uvdose.models.engine import effective_column
 from uvdose.service.cautions import CAUTION
 from uvdose.service.engine_gateway import Gateway
 from uvdose.service.problems import FieldError, Problem
@@ -91,12 +92,14 @@ def with_cloud_factor_from_measurement(columns: Mapping[str, np.ndarray], ids: n
 
 
 def result_columns(result: Mapping[str, np.ndarray], ids: np.ndarray, spectra: list[str]) -> dict[str, Any]:
-    """Flat output columns: id, scalars, ``effective_w_m2.<name>``, used values.
+    """Flat output columns: id, scalars, one effective irradiance per spectrum, used values.
 
-    Numbers stay float arrays (orjson writes them directly); text columns become lists."""
+    The effective irradiances keep the engine's column names (``engine.effective_column``)
+    on the wire: flat in CSV, nested under their common prefix in JSON rows. Numbers stay
+    float arrays (orjson writes them directly); text columns become lists."""
     out: dict[str, Any] = {"id": ids.tolist()}
     names = list(_SCALAR_OUTPUTS)
-    names += [(f"effective_w_m2.{name}", f"effective_w_m2.{name}") for name in spectra]
+    names += [(effective_column(name), effective_column(name)) for name in spectra]
     names += list(_USED_OUTPUTS)
     for wire, column in names:
         values = np.asarray(result[column])

@@ -15,12 +15,12 @@ from typing import Mapping
 
 import numpy as np
 
+from uvdose.models.engine import SPECTRUM_PREFIX
 from uvdose.service.cache.byte_rows import digest, row_checks, split_rows
 
 Columns = dict[str, np.ndarray]
 
 HEADER_BYTES = 16
-_SPECTRAL_PREFIX = "spectrum_w_m2_nm."
 
 
 @dataclass(frozen=True)
@@ -73,7 +73,7 @@ def encode(results: Mapping[str, np.ndarray], key_rows: np.ndarray) -> tuple[Lay
             blocks.append(fixed.view(np.uint8).reshape(count, width))
             fields.append((name, kind, f"S{width}", width))
             continue
-        stored = np.dtype(np.float32) if name.startswith(_SPECTRAL_PREFIX) else column.dtype
+        stored = np.dtype(np.float32) if name.startswith(SPECTRUM_PREFIX) else column.dtype
         data = np.ascontiguousarray(column.reshape(count, -1).astype(stored.newbyteorder("<")))
         fields.append((name, column.dtype.str, stored.newbyteorder("<").str + f"x{data.shape[1]}",
                        data.nbytes // max(count, 1)))
