@@ -30,6 +30,7 @@ from __future__ import annotations
 import numpy as np
 from pvlib import clearsky
 
+from uvdose.models.record_errors import RecordError, RecordErrors, check_records
 from uvdose.models.solar_geometry import solar_position, surface_pressure_hpa
 
 CMF_RANGE = (0.0, 1.5)
@@ -41,22 +42,20 @@ KASTEN_CZEPLAK_A = 0.75
 KASTEN_CZEPLAK_B = 3.4
 """Coefficients of CMF = 1 − A·C^B, Kasten & Czeplak (1980), from memory."""
 
+IMPLAUSIBLE_MEASUREMENT = ("is more than 1.5 times the clear-sky global irradiance at that "
+                           "place and time: check units and sensor")
+"""Why a measured global irradiance implying a CMF above 1.5 is refused."""
+
 MIN_SOLAR_ELEVATION_FOR_CLEAR_SKY_INDEX_DEG = 5.0
 """Below this solar elevation the clear-sky reference is too small for the ratio to mean
 anything (common practice, no source); the CMF is NaN there = "not determinable"."""
-
-
-def _fail(name: str, values: np.ndarray, bad: np.ndarray, allowed: str) -> None:
-    if bad.any():
-        i = int(np.flatnonzero(bad.ravel())[0])
-        raise ValueError(f"record {i}: {name} must be {allowed}, got {values.ravel()[i]!r}")
 
 
 def cmf_from_value(cloud_modification_factor) -> np.ndarray:
     """Validate client CMFs (N,) in [0, 1.5]; NaN passes through as "not given"."""
     cmf = np.atleast_1d(np.asarray(cloud_modification_factor, dtype=float))
     bad = ~np.isnan(cmf) & ((cmf < CMF_RANGE[0]) | (cmf > CMF_RANGE[1]) | ~np.isfinite(cmf))
-    _fail("cloud_modification_factor", cmf, bad, "a number in [0, 1.5]")
+    check_records(bad, "cloud_modification_factor", "must be a number in [0, 1.5]", cmf)
     return cmf
 
 
@@ -69,7 +68,7 @@ def cloud_fraction_from_oktas(oktas) -> np.ndarray:
     o = np.atleast_1d(np.asarray(oktas, dtype=float))
     given = ~np.isnan(o)
     bad = given & ((o < 0) | (o > 8) | (o != np.round(o)))
-    _fail("cloud_cover_oktas", o, bad, "a whole number 0–8 (9, sky obscured, has no cover)")
+    check_records(bad, "cloud_cover_oktas", "must be a whole number 0–8 (9, sky obscured, has no cover)", o)
     return o / 8.0
 
 
@@ -81,7 +80,7 @@ def cmf_from_cloud_fraction(cloud_fraction, a: float = KASTEN_CZEPLAK_A,
     """
     c = np.atleast_1d(np.asarray(cloud_fraction, dtype=float))
     bad = ~np.isnan(c) & ((c < 0) | (c > 1))
-    _fail("cloud_cover_fraction", c, bad, "a fraction in [0, 1]")
+    check_records(bad, "cloud_cover_fraction", "must be a fraction in [0, 1]", c)
     return 1.0 - a * c ** b
 
 
@@ -103,20 +102,21 @@ def cmf_from_global_irradiance(measured_ghi_w_m2, solar_zenith_deg, pressure_hpa
     CMF_UV = (GHI_measured / GHI_clear)^exponent, GHI_clear from
     :func:`clear_sky_global_horizontal_w_m2`. NaN where the measurement is NaN or the
     sun is below 5° elevation (not determinable; the engine then applies CMF 1).
-    Raises ValueError for a negative measurement or one implying a CMF above 1.5.
+    Raises ``RecordErrors`` (``models.record_errors``) for negative measurements and for
+    those implying a CMF above 1.5.
     """
     ghi = np.atleast_1d(np.asarray(measured_ghi_w_m2, dtype=float))
     zenith = np.broadcast_to(np.asarray(solar_zenith_deg, dtype=float), ghi.shape)
-    _fail("global_horizontal_w_m2", ghi, ~np.isnan(ghi) & ((ghi < 0) | ~np.isfinite(ghi)),
-          "a non-negative number of W m-2")
+    check_records(~np.isnan(ghi) & ((ghi < 0) | ~np.isfinite(ghi)), "measured_ghi_w_m2",
+                  "must be a non-negative number of W m-2", ghi)
     if not 0.0 < exponent <= 2.0:
         raise ValueError(f"exponent must be in (0, 2], got {exponent!r}")
     clear = clear_sky_global_horizontal_w_m2(zenith, pressure_hpa)
     usable = (90.0 - zenith) >= MIN_SOLAR_ELEVATION_FOR_CLEAR_SKY_INDEX_DEG
     index = np.where(usable, ghi / np.where(usable, clear, 1.0), np.nan)
     cmf = index ** exponent
-    _fail("global_horizontal_w_m2", ghi, np.nan_to_num(cmf, nan=0.0) > CMF_RANGE[1],
-          "at most 1.5 times the clear-sky value (check units and sensor)")
+    check_records(np.nan_to_num(cmf, nan=0.0) > CMF_RANGE[1], "measured_ghi_w_m2",
+                  IMPLAUSIBLE_MEASUREMENT, ghi)
     return cmf
 
 
@@ -128,11 +128,10 @@ def cmf_from_measured_global_irradiance(measured_ghi_w_m2, time_unix_s, latitude
     ``models.solar_geometry`` (NREL SPA) and the surface pressure resolved as the engine
     resolves it (given, else from elevation). NaN inputs mean "not given".
 
-    Returns ``(cmf, implausible)``: ``cmf`` (N,) is NaN where no measurement was given or
-    the sun is below 5° (not determinable); ``implausible`` (N,) marks measurements above
-    1.5 times the clear-sky value, which no cloud enhancement reaches (``CMF_RANGE``) and
-    which are most likely a unit or sensor error. Those records are left to the caller to
-    reject; their ``cmf`` is NaN.
+    Returns the CMF (N,), NaN where no measurement was given or the sun is below 5° (not
+    determinable). Measurements above 1.5 times the clear-sky value, which no cloud
+    enhancement reaches (``CMF_RANGE``) and which are most likely a unit or sensor error,
+    raise ``RecordErrors`` naming every such record (field ``measured_ghi_w_m2``).
     """
     ghi = np.asarray(measured_ghi_w_m2, dtype=float)
     elevation = np.where(np.isnan(elevation_m), 0.0, elevation_m)
@@ -142,9 +141,8 @@ def cmf_from_measured_global_irradiance(measured_ghi_w_m2, time_unix_s, latitude
     clear = clear_sky_global_horizontal_w_m2(zenith, pressure)
     cmf = np.full(ghi.shape, np.nan)
     cmf[usable] = (ghi[usable] / clear[usable]) ** exponent
-    implausible = cmf > CMF_RANGE[1]
-    cmf[implausible] = np.nan
-    return cmf, implausible
+    check_records(cmf > CMF_RANGE[1], "measured_ghi_w_m2", IMPLAUSIBLE_MEASUREMENT, ghi)
+    return cmf
 
 
 def resolve_cmf(cloud_modification_factor=None, cloud_cover_fraction=None,
@@ -152,8 +150,8 @@ def resolve_cmf(cloud_modification_factor=None, cloud_cover_fraction=None,
     """One CMF per record from whichever cloud input each record gives.
 
     Each argument is (N,) with NaN = not given, or None. A record that gives more
-    than one of them is an error (they could disagree); a record with none gets NaN
-    (the engine's default, CMF 1 = clear sky).
+    than one of them is an error (they could disagree: ``RecordErrors`` naming the last
+    one it gives); a record with none gets NaN (the engine's default, CMF 1 = clear sky).
     """
     given = [(name, np.atleast_1d(np.asarray(v, dtype=float)))
              for name, v in (("cloud_modification_factor", cloud_modification_factor),
@@ -162,11 +160,12 @@ def resolve_cmf(cloud_modification_factor=None, cloud_cover_fraction=None,
     if not given:
         return np.array([np.nan])
     n = given[0][1].shape
-    count = sum((~np.isnan(v)).astype(int) for _, v in given)
-    if (count > 1).any():
-        i = int(np.flatnonzero(count > 1)[0])
-        raise ValueError(f"record {i}: give only one of "
-                         f"{', '.join(name for name, _ in given)}")
+    present = np.stack(np.broadcast_arrays(*(~np.isnan(v) for _, v in given)))  # (inputs, N)
+    too_many = np.flatnonzero(present.sum(axis=0) > 1)
+    if too_many.size:
+        last = present.shape[0] - 1 - np.argmax(present[::-1], axis=0)  # each record's last input
+        raise RecordErrors(RecordError(i, given[last[i]][0], "is given with another cloud input; "
+                                       "give only one") for i in too_many.tolist())
     out = np.full(n, np.nan)
     converters = {"cloud_modification_factor": cmf_from_value,
                   "cloud_cover_fraction": cmf_from_cloud_fraction,

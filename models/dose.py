@@ -33,6 +33,7 @@ from typing import Callable, Mapping, Sequence
 import numpy as np
 
 from uvdose.models import engine
+from uvdose.models.record_errors import check_records
 from uvdose.models.solar_geometry import HORIZON_REFRACTION_DEG, sunrise_transit_sunset
 
 Columns = dict[str, np.ndarray]
@@ -98,15 +99,13 @@ def trapezoid_nodes(start_unix_s, end_unix_s, step_s: float) -> Nodes:
     """Nodes and composite-trapezoid weights for windows [start, end] (arrays (K,)).
 
     Nodes: both edges and every multiple of ``step_s`` strictly inside. Weights sum to
-    each window's length. Raises ValueError naming the first window whose end
-    precedes its start.
+    each window's length. Raises ``RecordErrors`` naming every window whose end precedes
+    its start.
     """
     start = np.atleast_1d(np.asarray(start_unix_s, dtype=float))
     end = np.atleast_1d(np.asarray(end_unix_s, dtype=float))
-    bad = ~(np.isfinite(start) & np.isfinite(end)) | (end < start)
-    if bad.any():
-        i = int(np.flatnonzero(bad)[0])
-        raise ValueError(f"window {i}: end must not precede start")
+    check_records(~(np.isfinite(start) & np.isfinite(end)) | (end < start), "end_unix_s",
+                  "must be finite and must not precede start", kind="window")
     step = check_step(step_s)
     first = np.floor(start / step) + 1.0
     last = np.ceil(end / step) - 1.0
@@ -138,9 +137,8 @@ def gauss_legendre_nodes(start_unix_s, end_unix_s, n: int) -> Nodes:
     end = np.atleast_1d(np.asarray(end_unix_s, dtype=float))
     if not 1 <= int(n) <= 64:
         raise ValueError(f"gauss_nodes must be between 1 and 64, got {n!r}")
-    bad = ~(np.isfinite(start) & np.isfinite(end)) | (end < start)
-    if bad.any():
-        raise ValueError(f"window {int(np.flatnonzero(bad)[0])}: end must not precede start")
+    check_records(~(np.isfinite(start) & np.isfinite(end)) | (end < start), "end_unix_s",
+                  "must be finite and must not precede start", kind="window")
     x, w = np.polynomial.legendre.leggauss(int(n))
     half = (end - start)[:, None] / 2.0
     times = (start[:, None] + half * (1.0 + x[None, :])).ravel()

@@ -55,6 +55,7 @@ import numpy as np
 import scipy.sparse
 
 from uvdose.models import MODEL_VERSION, atmosphere, optics
+from uvdose.models.record_errors import RecordError, RecordErrors
 from uvdose.models.spectral_grid import WAVELENGTH_NM, extraterrestrial_spectrum_w_m2_nm
 from uvdose.models.four_stream import transfer_components
 from uvdose.models.solver_parts import apply_surface_albedo
@@ -331,20 +332,22 @@ def relative_surface_flux(solar_zenith_deg, ozone_du, pressure_hpa, surface_albe
     return apply_surface_albedo(direct, diffuse_black, spherical, albedo)
 
 
-def _out_of_range_message(record, zenith, ozone, pressure, aod, alpha, ssa, g):
+def _out_of_range_error(record, zenith, ozone, pressure, aod, alpha, ssa, g) -> RecordError:
+    """What keeps one record out of the table: the first axis it lies outside, else its
+    aerosol type."""
     checks = (
-        ("solar_zenith_deg", zenith, ZENITH_NODES_DEG, "deg"),
-        ("ozone_du", ozone, OZONE_NODES_DU, "DU"),
-        ("pressure_hpa", pressure, PRESSURE_NODES_HPA, "hPa"),
+        ("solar_zenith_deg", zenith, ZENITH_NODES_DEG, " deg"),
+        ("ozone_du", ozone, OZONE_NODES_DU, " DU"),
+        ("pressure_hpa", pressure, PRESSURE_NODES_HPA, " hPa"),
         ("aod_550", aod, AOD_NODES, ""),
     )
     for name, value, nodes, unit in checks:
         if not nodes[0] <= value <= nodes[-1]:
-            return (f"record {record}: {name} {value:g} {unit} is outside the precomputed "
-                    f"clear-sky table ({nodes[0]:g}-{nodes[-1]:g} {unit})").replace("  ", " ")
-    return (f"record {record}: aerosol type (angstrom_exponent {alpha:g}, "
-            f"single_scattering_albedo {ssa:g}, asymmetry_factor {g:g}) differs from the "
-            f"table's default {DEFAULT_AEROSOL_TYPE}")
+            return RecordError(record, name, f"is outside the precomputed clear-sky table "
+                                             f"({nodes[0]:g}-{nodes[-1]:g}{unit})", value=value)
+    return RecordError(record, None, f"aerosol type (angstrom_exponent {alpha:g}, "
+                                     f"single_scattering_albedo {ssa:g}, asymmetry_factor {g:g}) "
+                                     f"differs from the table's default {DEFAULT_AEROSOL_TYPE}")
 
 
 def spectral_irradiance(solar_zenith_deg, earth_sun_distance_au, ozone_du, pressure_hpa,
@@ -356,7 +359,7 @@ def spectral_irradiance(solar_zenith_deg, earth_sun_distance_au, ozone_du, press
     interpolated; records with the sun below the horizon get exact zeros; the rest go
     to ``direct_solve`` (a callable with the same arguments returning an object with
     ``direct_horizontal_w_m2_nm`` and ``diffuse_horizontal_w_m2_nm``). Without
-    ``direct_solve`` an uncovered daytime record is an error naming it and the field.
+    ``direct_solve`` uncovered daytime records raise ``RecordErrors`` naming each and its field.
     """
     zenith = np.atleast_1d(np.asarray(solar_zenith_deg, dtype=float))
     n = zenith.size
@@ -371,9 +374,8 @@ def spectral_irradiance(solar_zenith_deg, earth_sun_distance_au, ozone_du, press
     covered = in_table_range(zenith, ozone, pressure, aod, alpha, ssa, g)
     uncovered = np.flatnonzero(sun_up & ~covered)
     if uncovered.size and direct_solve is None:
-        i = uncovered[0]
-        raise ValueError(_out_of_range_message(i, zenith[i], ozone[i], pressure[i], aod[i],
-                                               alpha[i], ssa[i], g[i]))
+        raise RecordErrors(_out_of_range_error(i, zenith[i], ozone[i], pressure[i], aod[i],
+                                               alpha[i], ssa[i], g[i]) for i in uncovered.tolist())
 
     top_of_atmosphere = extraterrestrial_spectrum_w_m2_nm().astype(np.float32)[None, :]
     inverse_distance_squared = 1.0 / distance ** 2

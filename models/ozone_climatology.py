@@ -40,6 +40,7 @@ from pathlib import Path
 import numpy as np
 
 from uvdose.models.grid_interpolation import GridAxis, TrilinearGrid
+from uvdose.models.record_errors import check_records
 
 TABLE_PATH = Path(__file__).with_name("data") / "ozone_climatology.npz"
 """The tabulated Van Heuklon (1979) fit."""
@@ -189,13 +190,8 @@ def _validated(name: str, values, low: float, high: float, high_inclusive: bool)
     arr = np.atleast_1d(np.asarray(values, dtype=float))
     with np.errstate(invalid="ignore"):
         bad = ~np.isfinite(arr) | (arr < low) | ((arr > high) if high_inclusive else (arr >= high))
-    if bad.any():
-        index = np.flatnonzero(bad)
-        upper = "]" if high_inclusive else ")"
-        raise ValueError(
-            f"{name} must be finite and within [{low:g}, {high:g}{upper}; "
-            f"records {index[:10].tolist()} are not (first value {float(arr.reshape(-1)[index[0]]):g})"
-        )
+    upper = "]" if high_inclusive else ")"
+    check_records(bad, name, f"must be finite and within [{low:g}, {high:g}{upper}", arr)
     return arr
 
 
@@ -218,7 +214,7 @@ def climatological_ozone_du(latitude_deg, longitude_deg, day_of_year,
         ``day_of_year_from_unix`` for times). Arrays broadcast together.
     climatology : one of ``CLIMATOLOGY_NAMES`` (see the module docstring).
 
-    Raises ``ValueError`` naming the offending records for out-of-range or NaN input.
+    Raises ``RecordErrors`` naming the offending records for out-of-range or NaN input.
 
     References
     ----------

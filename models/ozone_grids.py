@@ -47,6 +47,7 @@ import numpy as np
 from uvdose.models.grid_interpolation import GridAxis, TrilinearGrid
 from uvdose.models.ozone_climatology import (DEFAULT_CLIMATOLOGY, check_climatology, climatological_ozone_du,
                                              day_of_year_from_unix)
+from uvdose.models.record_errors import check_records
 
 PLAUSIBLE_OZONE_DU = (50.0, 700.0)
 """Accepted range for any total-ozone column [DU], grid or client; the same range the
@@ -413,7 +414,7 @@ class OzoneResolver:
         ``client_ozone_du`` NaN (or None for all records) means "not given". Given
         values must lie within ``PLAUSIBLE_OZONE_DU``; latitude in [-90, 90],
         longitude in [-180, 360] and finite times are required. Violations raise
-        ``ValueError`` naming the records. Labels are ``"client"``,
+        ``RecordErrors`` naming the records. Labels are ``"client"``,
         ``"grid:<file name>"`` or ``"climatology"`` (object array).
         """
         lat = np.atleast_1d(np.asarray(latitude_deg, dtype=float))
@@ -424,16 +425,18 @@ class OzoneResolver:
         else:
             client = np.atleast_1d(np.asarray(client_ozone_du, dtype=float))
         lat, lon, t, client = np.broadcast_arrays(lat, lon, t, client)
-        _require(~np.isfinite(t), "time_unix_s must be finite")
+        check_records(~np.isfinite(t), "time_unix_s", "must be finite", t)
         with np.errstate(invalid="ignore"):
-            _require(~((lat >= -90.0) & (lat <= 90.0)), "latitude_deg must be within [-90, 90]")
-            _require(~((lon >= -180.0) & (lon <= 360.0)), "longitude_deg must be within [-180, 360]")
+            check_records(~((lat >= -90.0) & (lat <= 90.0)), "latitude_deg",
+                          "must be within [-90, 90]", lat)
+            check_records(~((lon >= -180.0) & (lon <= 360.0)), "longitude_deg",
+                          "must be within [-180, 360]", lon)
         given = ~np.isnan(client)
         with np.errstate(invalid="ignore"):
-            _require(
+            check_records(
                 given & ~((client >= PLAUSIBLE_OZONE_DU[0]) & (client <= PLAUSIBLE_OZONE_DU[1])),
-                f"ozone_du must be within [{PLAUSIBLE_OZONE_DU[0]:g}, {PLAUSIBLE_OZONE_DU[1]:g}] DU",
-            )
+                "ozone_du", f"must be within [{PLAUSIBLE_OZONE_DU[0]:g}, {PLAUSIBLE_OZONE_DU[1]:g}] DU",
+                client)
 
         ozone = np.where(given, client, np.nan)
         labels = np.empty(lat.shape, dtype=object)
@@ -454,9 +457,3 @@ class OzoneResolver:
                 lat[pending], lon[pending], day_of_year_from_unix(t[pending]), self.climatology
             )
         return ozone, labels
-
-
-def _require(bad: np.ndarray, message: str) -> None:
-    if bad.any():
-        index = np.flatnonzero(bad)
-        raise ValueError(f"{message}; records {index[:10].tolist()} are not")

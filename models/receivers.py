@@ -23,23 +23,16 @@ from __future__ import annotations
 
 import numpy as np
 
+from uvdose.models.record_errors import check_records
+
 # Below this cosine of the solar zenith the sun sits on the horizon and the horizontal
 # direct irradiance is zero to rounding; dividing by it would only amplify noise.
 _MIN_COS_ZENITH = 1e-6
 
 
-def _first_bad(mask: np.ndarray) -> int:
-    return int(np.flatnonzero(mask.ravel())[0])
-
-
 def _check_range(name: str, values: np.ndarray, low: float, high: float) -> None:
-    bad = ~np.isfinite(values) | (values < low) | (values > high)
-    if bad.any():
-        index = _first_bad(bad)
-        raise ValueError(
-            f"record {index}: {name} must be a number in [{low:g}, {high:g}], "
-            f"got {values.ravel()[index]!r}"
-        )
+    check_records(~np.isfinite(values) | (values < low) | (values > high), name,
+                  f"must be a number in [{low:g}, {high:g}]", values if np.ndim(values) <= 1 else None)
 
 
 def cos_incidence(solar_zenith_deg, solar_azimuth_deg, tilt_deg, receiver_azimuth_deg):
@@ -63,7 +56,7 @@ def transposition_factors(solar_zenith_deg, solar_azimuth_deg, tilt_deg,
 
     The receiver's irradiance is ``direct·E_dir,h + diffuse·E_dif,h + ground·E_glo,h``;
     the factors do not depend on wavelength unless ``ground_albedo`` does, in which
-    case ``ground`` has its shape (N, W). Raises ValueError naming the first record
+    case ``ground`` has its shape (N, W). Raises ``RecordErrors`` naming every record
     with an out-of-range tilt (0–180°), sky-view factor (0–1), albedo (0–1) or
     direct-beam fraction (0–1).
     """
@@ -73,9 +66,8 @@ def transposition_factors(solar_zenith_deg, solar_azimuth_deg, tilt_deg,
     sky_view = np.broadcast_to(np.asarray(sky_view_factor, dtype=float), zenith.shape)
     albedo = np.asarray(ground_albedo, dtype=float)
     _check_range("tilt_deg", tilt, 0.0, 180.0)
-    if not np.isfinite(receiver_az).all():
-        index = _first_bad(~np.isfinite(receiver_az))
-        raise ValueError(f"record {index}: receiver_azimuth_deg must be a finite number of degrees")
+    check_records(~np.isfinite(receiver_az), "receiver_azimuth_deg",
+                  "must be a finite number of degrees", receiver_az)
     _check_range("sky_view_factor", sky_view, 0.0, 1.0)
     _check_range("ground_albedo", albedo, 0.0, 1.0)
     if direct_beam_fraction is None:

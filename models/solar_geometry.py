@@ -35,6 +35,8 @@ from dataclasses import dataclass
 import numpy as np
 from pvlib import spa
 
+from uvdose.models.record_errors import check_records
+
 __all__ = [
     "SolarPosition",
     "solar_position",
@@ -97,20 +99,10 @@ class SolarPosition:
         return np.cos(np.radians(self.zenith_deg))
 
 
-def _out_of_range_message(field: str, values: np.ndarray, bad: np.ndarray, allowed: str) -> str:
-    index = np.flatnonzero(bad)
-    shown = ", ".join(f"record {i}: {field}={float(values[i]):g}" for i in index[:5])
-    more = f" and {index.size - 5} more" if index.size > 5 else ""
-    return f"{field} must be {allowed}; {shown}{more}"
-
-
 def _checked(field: str, values, low: float, high: float) -> np.ndarray:
     array = np.asarray(values, dtype=float)
-    bad = ~np.isfinite(array) | (array < low) | (array > high)
-    if np.any(bad):
-        flat = np.atleast_1d(array)
-        raise ValueError(_out_of_range_message(field, flat, np.atleast_1d(bad),
-                                               f"a finite number in [{low:g}, {high:g}]"))
+    check_records(~np.isfinite(array) | (array < low) | (array > high), field,
+                  f"must be a finite number in [{low:g}, {high:g}]", np.atleast_1d(array))
     return array
 
 
@@ -196,7 +188,8 @@ def solar_position(
     Method: Reda & Andreas (2004), Solar Energy 76, 577–589, via ``pvlib.spa``.
     Stated SPA uncertainty ±0.0003° for years −2000…6000.
 
-    Raises ValueError naming the record and field for non-finite or out-of-range input.
+    Raises ``RecordErrors`` naming every record and field with non-finite or out-of-range
+    input.
     """
     time_unix_s = _checked("time_unix_s", time_unix_s, *_SPA_TIME_RANGE_UNIX_S)
     latitude_deg = _checked("latitude_deg", latitude_deg, -90.0, 90.0)
@@ -347,7 +340,7 @@ def pressure_from_elevation_hpa(elevation_m) -> np.ndarray:
     geopotential height H = r0·z/(r0 + z) with r0 = 6 356 766 m (eq. 18), then the
     hydrostatic barometric formula (eqs. 33a/33b) is applied in the troposphere
     (lapse −6.5 K/km from 288.15 K, 1013.25 hPa) and in the isothermal layer
-    11–20 km (216.65 K). Heights outside ``ELEVATION_RANGE_M`` raise ValueError.
+    11–20 km (216.65 K). Heights outside ``ELEVATION_RANGE_M`` raise ``RecordErrors``.
     """
     low, high = ELEVATION_RANGE_M
     z = _checked("elevation_m", elevation_m, low, high)

@@ -13,6 +13,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from uvdose.models.record_errors import check_records
+
 __all__ = [
     "UVI_PER_W_M2",
     "EXPOSURE_CATEGORIES",
@@ -37,13 +39,8 @@ EXPOSURE_CATEGORIES: tuple[tuple[str, int, int | None], ...] = (
 
 def _finite_non_negative(field: str, values) -> np.ndarray:
     array = np.asarray(values, dtype=float)
-    bad = ~np.isfinite(array) | (array < 0.0)
-    if np.any(bad):
-        flat, flags = np.atleast_1d(array), np.atleast_1d(bad)
-        index = np.flatnonzero(flags)
-        shown = ", ".join(f"record {i}: {field}={flat[i]:g}" for i in index[:5])
-        more = f" and {index.size - 5} more" if index.size > 5 else ""
-        raise ValueError(f"{field} must be finite and >= 0; {shown}{more}")
+    check_records(~np.isfinite(array) | (array < 0.0), field, "must be finite and >= 0",
+                  np.atleast_1d(array))
     return array
 
 
@@ -52,7 +49,7 @@ def uv_index(erythemal_w_m2) -> np.ndarray:
 
     UVI = 40 m² W⁻¹ × E_ery (WHO/WMO 2002). Continuous (not rounded); see
     :func:`reported_uv_index` for the whole-number value the guide reports.
-    Raises ValueError naming the record for negative or non-finite input.
+    Raises ``RecordErrors`` naming every record with negative or non-finite input.
     """
     return UVI_PER_W_M2 * _finite_non_negative("erythemal_w_m2", erythemal_w_m2)
 
@@ -90,8 +87,7 @@ def madronich_uv_index(mu0, ozone_du) -> np.ndarray:
     ozone = np.asarray(ozone_du, dtype=float)
     if not np.all(np.isfinite(mu)):
         raise ValueError("mu0 must be finite")
-    if np.any(~np.isfinite(ozone) | (ozone <= 0.0)):
-        bad = np.flatnonzero(np.atleast_1d(~np.isfinite(ozone) | (ozone <= 0.0)))
-        raise ValueError(f"ozone_du must be finite and > 0; records {bad[:5].tolist()}")
+    check_records(~np.isfinite(ozone) | (ozone <= 0.0), "ozone_du", "must be finite and > 0",
+                  np.atleast_1d(ozone))
     sunlit = np.clip(mu, 0.0, None)
     return 12.5 * sunlit ** 2.42 * (ozone / 300.0) ** -1.23

@@ -41,6 +41,7 @@ from typing import Mapping, Sequence
 import numpy as np
 
 from uvdose.models import dose
+from uvdose.models.record_errors import RecordError, RecordErrors, check_records
 from uvdose.models.solar_geometry import solar_position
 
 DEFAULT_ROUTE_STEP_S = 300.0
@@ -92,28 +93,25 @@ def initial_bearing_deg(lat1_deg, lon1_deg, lat2_deg, lon2_deg) -> np.ndarray:
 
 
 def _validate(points: RoutePoints) -> None:
-    same_route = points.route[1:] == points.route[:-1]
+    """Raise ``RecordErrors`` (records = routes) naming every route with fewer than two
+    points, and every point with an unusable position or time, by route and point."""
     counts = np.bincount(points.route, minlength=points.n_routes)
-    if (counts < 2).any():
-        r = int(np.flatnonzero(counts < 2)[0])
-        raise ValueError(f"route {r}: needs at least two points")
-    for name, values, low, high in (("latitude_deg", points.latitude_deg, -90, 90),
-                                    ("longitude_deg", points.longitude_deg, -180, 180),
-                                    ("time_unix_s", points.time_unix_s, -6.2e10, 2.5e11)):
+    check_records(counts < 2, None, "needs at least two points", kind="route")
+    same_route = points.route[1:] == points.route[:-1]
+    backwards = np.concatenate([[False], same_route & (np.diff(points.time_unix_s) <= 0)])
+    point = np.arange(points.route.size) - np.searchsorted(points.route, points.route)
+    errors = []
+    for name, values, low, high in (("time_unix_s", points.time_unix_s, -6.2e10, 2.5e11),
+                                    ("latitude_deg", points.latitude_deg, -90, 90),
+                                    ("longitude_deg", points.longitude_deg, -180, 180)):
         bad = ~np.isfinite(values) | (values < low) | (values > high)
-        if bad.any():
-            i = int(np.flatnonzero(bad)[0])
-            raise ValueError(f"route {points.route[i]}, point {_point_index(points, i)}: "
-                             f"{name} must be a number in [{low:g}, {high:g}]")
-    backwards = same_route & (np.diff(points.time_unix_s) <= 0)
-    if backwards.any():
-        i = int(np.flatnonzero(backwards)[0]) + 1
-        raise ValueError(f"route {points.route[i]}, point {_point_index(points, i)}: time must be "
-                         f"later than the previous point's")
-
-
-def _point_index(points: RoutePoints, i: int) -> int:
-    return int(i - np.flatnonzero(points.route == points.route[i])[0])
+        errors += [RecordError(points.route[i], name, f"must be a number in [{low:g}, {high:g}]",
+                               point=point[i], value=values[i], kind="route")
+                   for i in np.flatnonzero(bad).tolist()]
+    errors += [RecordError(points.route[i], "time_unix_s", "must be later than the previous point's",
+                           point=point[i], kind="route") for i in np.flatnonzero(backwards).tolist()]
+    if errors:
+        raise RecordErrors(sorted(errors, key=lambda e: (e.index, e.point)))
 
 
 @dataclass
@@ -140,8 +138,9 @@ def route_doses(points: RoutePoints, evaluate: dose.Evaluator,
 
     ``per_route``: Conditions columns (R,) that hold for a whole route (ozone,
     cloud modification factor, albedo…). The glazing is the evaluator's business
-    (``dose.engine_evaluator(..., transmittance=...)``). Raises ValueError naming the
-    route and point for bad input.
+    (``dose.engine_evaluator(..., transmittance=...)``). Raises ``RecordErrors``
+    (``models.record_errors``; records = routes, with the point where one is at fault)
+    for bad points and routes, ValueError for bad options.
     """
     if driver_side not in DRIVER_SIDE_OFFSET_DEG:
         raise ValueError(f"driver_side must be 'left' or 'right', got {driver_side!r}")
@@ -241,7 +240,9 @@ def _carry_headings(heading, moving, leg_route, n_routes):
     backward_ok = next_moving <= last_of_route
     still = ~forward_ok & ~backward_ok
     if still.any():
-        raise ValueError(f"route {leg_route[np.flatnonzero(still)[0]]}: all points at one position, "
-                         f"so the heading (and the driver-side window) is unknown")
+        routes = np.unique(leg_route[still])
+        check_records(np.isin(np.arange(n_routes), routes), None,
+                      "has all its points at one position, so the heading (and the driver-side "
+                      "window) is unknown", kind="route")
     source = np.where(forward_ok, last_moving, np.minimum(next_moving, heading.size - 1))
     return heading[source]

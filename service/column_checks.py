@@ -22,7 +22,7 @@ from typing import Any, Callable, Iterable, Mapping, Sequence
 import numpy as np
 from marshmallow import Schema, ValidationError, fields, validate
 
-from uvdose.service.problems import FieldError, Problem
+from uvdose.service.problems import FieldError, Problem, invalid_records
 from uvdose.service.record_fields import (
     IsoDate,
     OffsetDateTime,
@@ -296,17 +296,6 @@ def check_columns(
     if "surface_type" in columns:
         columns["surface_type"] = np.where(np.equal(columns["surface_type"], None), "", columns["surface_type"])
     return Batch(columns=columns, ids=ids), errors
-
-
-def invalid_records(errors: Sequence[FieldError], n: int, what: str = "record") -> Problem:
-    """The 422 problem for ``errors`` found in ``n`` records (``what`` names them in the detail);
-    ``invalid-options`` when no error names a record."""
-    bad_count = len({error.index for error in errors if error.index is not None})
-    if not bad_count:  # only request-wide errors: options, or column names in the column layout
-        return Problem(422, "invalid-options", "The request options are invalid", "Nothing was computed.",
-                       list(errors))
-    return Problem(422, "invalid-records", "The batch has invalid records",
-                   f"{bad_count} of {n} {what}(s) have errors; nothing was computed.", list(errors))
 
 
 def validate_columns(raw: Mapping[str, list], schema: Schema, *, n: int, **options: Any) -> Batch:

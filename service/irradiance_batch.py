@@ -16,7 +16,7 @@ from uvdose.models import MODEL_VERSION, clouds
 from uvdose.models.engine import effective_column
 from uvdose.service.cautions import CAUTION
 from uvdose.service.engine_gateway import Gateway
-from uvdose.service.problems import FieldError, Problem
+from uvdose.service.problems import by_schema, records_named
 from uvdose.service.record_fields import (
     OZONE_CLIMATOLOGY_OPTION,
     SPECTRA_OPTION,
@@ -37,6 +37,10 @@ class IrradianceRecordSchema(ConditionsRecordSchema):
 
     exclusive_fields = ConditionsRecordSchema.exclusive_fields + (
         ("cloud_modification_factor", "measured_ghi_w_m2"),)
+
+
+_RECORD_NAMES = IrradianceRecordSchema()
+"""Its wire names, for naming the models' record errors."""
 
 
 class IrradianceOptionsSchema(OptionsSchema):
@@ -69,23 +73,17 @@ def with_cloud_factor_from_measurement(columns: Mapping[str, np.ndarray], ids: n
     """Replace a ``measured_ghi_w_m2`` column by the cloud factor it implies
     (:func:`models.clouds.cmf_from_measured_global_irradiance`), before the cache and the
     engine see the batch. A measurement above 1.5 times the clear-sky value rejects the
-    batch, naming each such record."""
+    batch (a 422 problem), naming each such record."""
     columns = dict(columns)
     measured = columns.pop("measured_ghi_w_m2", None)
     if measured is None or np.isnan(measured).all():
         return columns
     n = len(measured)
     nan = np.full(n, np.nan)
-    cmf, implausible = clouds.cmf_from_measured_global_irradiance(
-        measured, columns["time_unix_s"], columns["latitude_deg"], columns["longitude_deg"],
-        columns.get("elevation_m", nan), columns.get("pressure_hpa", nan))
-    if implausible.any():
-        raise Problem(422, "invalid-records", "The batch has invalid records", "Nothing was computed.",
-                      [FieldError(field="measured_ghi_w_m2", index=int(i),
-                                  id=ids[i] if isinstance(ids[i], str) else None,
-                                  reason="is more than 1.5 times the clear-sky global irradiance "
-                                         "at that place and time: check units and sensor")
-                       for i in np.flatnonzero(implausible)])
+    with records_named(by_schema(_RECORD_NAMES, ids), n):
+        cmf = clouds.cmf_from_measured_global_irradiance(
+            measured, columns["time_unix_s"], columns["latitude_deg"], columns["longitude_deg"],
+            columns.get("elevation_m", nan), columns.get("pressure_hpa", nan))
     given = columns.get("cloud_modification_factor", nan)
     columns["cloud_modification_factor"] = np.where(np.isnan(given), cmf, given)
     return columns

@@ -1,7 +1,9 @@
 """Error responses as RFC 9457 problem details (``application/problem+json``).
 
 Every error the service returns, from a bad record to an unknown URL or an unexpected
-exception, goes through :func:`problem_response`. Problem types are URNs of our own
+exception, goes through :func:`problem_response`. The typed per-record errors the models
+raise (``models.record_errors``) become problem entries here, in :func:`records_named`:
+the caller, which knows the records' wire names and ids, says how to name each. Problem types are URNs of our own
 (``urn:uvdose:problem:<slug>``); plain HTTP errors use ``about:blank`` as RFC 9457 §4.2.1
 recommends, with the HTTP reason phrase as title.
 """
@@ -9,13 +11,15 @@ from __future__ import annotations
 
 import json
 import logging
+from contextlib import contextmanager
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, Callable, Iterator, Sequence
 
 from flask import Flask, Response
 from werkzeug.exceptions import HTTPException
 
 from uvdose.models.clear_sky import FullSolveLimitExceeded
+from uvdose.models.record_errors import RecordError, RecordErrors
 
 PROBLEM_MEDIA_TYPE = "application/problem+json"
 TYPE_PREFIX = "urn:uvdose:problem:"
@@ -53,6 +57,56 @@ class Problem(Exception):
 
     def __str__(self) -> str:
         return f"{self.status} {self.title}: {self.detail or ''}"
+
+
+def invalid_records(errors: Sequence[FieldError], n: int, what: str = "record") -> Problem:
+    """The 422 problem for ``errors`` found in ``n`` records (``what`` names them in the detail);
+    ``invalid-options`` when no error names a record."""
+    bad_count = len({error.index for error in errors if error.index is not None})
+    if not bad_count:  # only request-wide errors: options, or column names in the column layout
+        return Problem(422, "invalid-options", "The request options are invalid", "Nothing was computed.",
+                       list(errors))
+    return Problem(422, "invalid-records", "The batch has invalid records",
+                   f"{bad_count} of {n} {what}(s) have errors; nothing was computed.", list(errors))
+
+
+NameRecordError = Callable[[RecordError], FieldError]
+"""Turns a models ``RecordError`` (model field names, array positions) into the problem
+entry the client reads (wire field path, record index and id)."""
+
+
+def record_field_errors(error: RecordError | RecordErrors, name: NameRecordError) -> list[FieldError]:
+    """The problem entries for a models record error, one per record and field."""
+    return [name(entry) for entry in (error.errors if isinstance(error, RecordErrors) else [error])]
+
+
+@contextmanager
+def records_named(name: NameRecordError, n: int, what: str = "record") -> Iterator[None]:
+    """Run models code whose ``RecordError``/``RecordErrors`` become the 422 problem for
+    ``n`` records (``what`` names them in the detail), each entry named by ``name``."""
+    try:
+        yield
+    except (RecordError, RecordErrors) as error:
+        raise invalid_records(record_field_errors(error, name), n, what) from None
+
+
+def by_schema(schema: Any, ids: Sequence[Any] | None = None) -> NameRecordError:
+    """Name record errors by a record schema's wire names: the model's field is the schema
+    attribute (the engine's column name), its ``data_key`` the wire name; ``ids`` (object
+    array, None where a record gave none) supply the record ids."""
+    wire = {name: declared.data_key or name for name, declared in schema.fields.items()}
+
+    def name(error: RecordError) -> FieldError:
+        record_id = ids[error.index] if ids is not None else None
+        return FieldError(field=wire.get(error.field, error.field) if error.field else "record",
+                          reason=error.reason, index=error.index,
+                          id=record_id if isinstance(record_id, str) else None)
+
+    return name
+
+
+def _model_names(error: RecordError) -> FieldError:
+    return FieldError(field=error.field or "record", reason=error.reason, index=error.index)
 
 
 def problem_body(
@@ -123,6 +177,15 @@ def init_app(app: Flask) -> None:
                           "are allowed per request. Split the batch, or use the default aerosol type.",
                           extensions={"max_full_solve_records": error.limit})
         return response_for(problem)
+
+    @app.errorhandler(RecordError)
+    @app.errorhandler(RecordErrors)
+    def _records(error: RecordError | RecordErrors) -> Response:
+        # A models record error no route named (routes wrap their models calls in
+        # records_named): still the client's 422, with the models' own field names.
+        errors = record_field_errors(error, _model_names)
+        n = max(e.index for e in errors) + 1
+        return response_for(invalid_records(errors, n), app.config.get("UVDOSE_MAX_ERRORS_LISTED"))
 
     @app.errorhandler(HTTPException)
     def _http(error: HTTPException) -> Response:

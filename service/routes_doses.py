@@ -35,11 +35,13 @@ from flask import Blueprint, Response, current_app, request
 from marshmallow import fields, validate
 
 from uvdose.models import MODEL_VERSION, clouds, dose, exposure, filters, vehicle_routes
+from uvdose.models.record_errors import RecordError
 from uvdose.models.spectral_grid import WAVELENGTH_NM
 from uvdose.service import engine_gateway, metrics
 from uvdose.service.cautions import DOSE_CAUTION
-from uvdose.service.column_checks import check_columns, invalid_records
-from uvdose.service.problems import FieldError, Problem
+from uvdose.service.column_checks import check_columns
+from uvdose.service.problems import (FieldError, NameRecordError, Problem, by_schema, invalid_records,
+                                     records_named)
 from uvdose.service.record_fields import (
     AOD_550,
     CLOUD_COVER,
@@ -132,11 +134,6 @@ def _transmittance(options: Mapping[str, Any], default: str | None = None):
     return values, name or "none"
 
 
-def _model_problem(error: ValueError, field_prefix: str = "") -> Problem:
-    return Problem(422, "invalid-records", "The batch has invalid records",
-                   "Nothing was computed.", [FieldError(field=field_prefix, reason=str(error))])
-
-
 def _exposure_rows(doses: Mapping[str, np.ndarray], final: Mapping[str, np.ndarray]) -> dict[str, list]:
     figures = exposure.exposure_figures(doses, final)
     out: dict[str, list] = {}
@@ -190,16 +187,10 @@ _WINDOW_OPTIONS = DoseOptionsSchema()
 
 
 def _cmf_columns(columns: Mapping[str, np.ndarray], ids) -> np.ndarray:
-    try:
+    with records_named(by_schema(_WINDOW_RECORDS, ids), len(ids)):
         return clouds.resolve_cmf(columns.get("cloud_modification_factor"),
                                   columns.get("cloud_cover_fraction"),
                                   columns.get("cloud_cover_oktas"))
-    except ValueError as error:
-        index = int(str(error).split(":")[0].split()[-1])
-        raise Problem(422, "invalid-records", "The batch has invalid records", "Nothing was computed.",
-                      [FieldError(field="cloud_oktas" if "oktas" in str(error) else "cloud_factor",
-                                  reason=str(error).split(": ", 1)[1], index=index,
-                                  id=_record_id(ids, index))]) from None
 
 
 @blueprint.post(WINDOWS_ROUTE)
@@ -221,10 +212,8 @@ def windows() -> Response:
     step_s = float(options.get("step_s") or dose.DEFAULT_WINDOW_STEP_S)
     transmittance, label = _transmittance(options)
     evaluate = engine_gateway.current(options.get("ozone_climatology")).dose_evaluator(spectra, transmittance, label, "windows")
-    try:
+    with records_named(by_schema(_WINDOW_RECORDS, batch.ids), len(batch)):
         out = dose.window_doses(cols, start, end, evaluate, step_s=step_s, spectra=spectra)
-    except ValueError as error:
-        raise _model_problem(error) from None
     metrics.count_records(WINDOWS_ROUTE, len(batch))
     doses = out["dose_j_m2"]
     columns: dict[str, list] = {
@@ -293,6 +282,12 @@ def _daily_table(daily: Any, n_fields: int, n_days: int):
                                 reason=error.reason) for error in errors]
 
 
+def _daily_entry_names(error: RecordError) -> FieldError:
+    """A models error about entry i of the daily table, named as its other errors are."""
+    return FieldError(field=f"daily.{by_schema(_DAILY_ENTRIES)(error).field}[{error.index}]",
+                      reason=error.reason)
+
+
 def _daily_inputs(daily: Any, n_fields: int, first: np.datetime64, n_days: int):
     """(ozone (F, D), CMF (F, D)) from the optional daily table."""
     ozone = np.full((n_fields, n_days), np.nan)
@@ -324,10 +319,8 @@ def _daily_inputs(daily: Any, n_fields: int, first: np.datetime64, n_days: int):
     def column(name):
         return columns.get(name, np.full(n, np.nan))
 
-    try:
+    with records_named(_daily_entry_names, n, "entry"):
         day_cmf = clouds.resolve_cmf(column("cloud_modification_factor"), None, column("cloud_cover_oktas"))
-    except ValueError as error:
-        raise _options_problem("daily", str(error).replace("record", "entry")) from None
     ozone[field_index, day_index] = column("ozone_du")
     cmf[field_index, day_index] = np.broadcast_to(day_cmf, (n,))
     return ozone, cmf
@@ -353,12 +346,10 @@ def field_doses() -> Response:
     transmittance, label = _transmittance(options)
     gateway = engine_gateway.current(options.get("ozone_climatology"))
     evaluate = gateway.dose_evaluator(spectra, transmittance, label, "fields")
-    try:
-        season = dose.field_season(batch.columns, days, evaluate, ozone_du=ozone,
-                                   cloud_modification_factor=cmf, spectra=spectra,
-                                   reference_ozone=gateway.reference_ozone, **quadrature)
-    except ValueError as error:
-        raise _model_problem(error) from None
+    # Every input was validated above: an error from here on is the service's, not the client's.
+    season = dose.field_season(batch.columns, days, evaluate, ozone_du=ozone,
+                               cloud_modification_factor=cmf, spectra=spectra,
+                               reference_ozone=gateway.reference_ozone, **quadrature)
     metrics.count_records(FIELDS_ROUTE, len(batch))
 
     dates = [str(d) for d in first + np.arange(n_days)]
@@ -528,9 +519,11 @@ def _route_count(raw_routes: list) -> int:
     return sum(map(size, raw_routes))
 
 
-def _read_routes(raw_routes: list) -> tuple[vehicle_routes.RoutePoints, dict[str, np.ndarray], np.ndarray]:
-    """(points of every route, per-route conditions (R,), route ids) of valid routes; else a 422
-    problem naming every bad value by route, point and field."""
+def _read_routes(raw_routes: list) -> tuple[vehicle_routes.RoutePoints, dict[str, np.ndarray], np.ndarray,
+                                             NameRecordError]:
+    """(points of every route, per-route conditions (R,), route ids, the namer of models
+    errors about them) of valid routes; else a 422 problem naming every bad value by route,
+    point and field."""
     n_routes = len(raw_routes)
     flat = _flatten_routes(raw_routes)
     raw, _, unknown = row_columns(flat.conditions, _ROUTE_CONDITIONS, n_routes)
@@ -561,7 +554,18 @@ def _read_routes(raw_routes: list) -> tuple[vehicle_routes.RoutePoints, dict[str
                                 longitude_deg=columns["longitude_deg"], stop=columns["stop"], gap=columns["gap"])
     per_route = {name: route_batch.columns.get(name, np.full(n_routes, np.nan))
                  for name in _ROUTE_CONDITIONS.fields if name != "id"}
-    return points, per_route, ids
+    point_wire = {name: declared.data_key or name for name, declared in _ROUTE_POINTS.fields.items()}
+
+    def name_route_error(error: RecordError) -> FieldError:
+        """A models error about route ``index`` (and its point ``point``), named by its path
+        in the request body."""
+        if error.point is None:
+            field = f"routes[{error.index}]"
+        else:
+            field = flat.point_path(flat.point_start[error.index] + error.point, point_wire.get(error.field))
+        return FieldError(field=field, reason=error.reason, index=error.index, id=_record_id(ids, error.index))
+
+    return points, per_route, ids, name_route_error
 
 
 @blueprint.post(ROUTES_ROUTE)
@@ -579,7 +583,7 @@ def route_doses() -> Response:
         raise Problem(413, "too-many-records", "Too many records in one request",
                       f"At most {MAX_ROUTE_POINTS} route points are accepted per request.",
                       extensions={"max_records": MAX_ROUTE_POINTS})
-    points, per_route, ids = _read_routes(raw_routes)
+    points, per_route, ids, name_route_error = _read_routes(raw_routes)
     spectra = list(options.get("spectra") or DEFAULT_ROUTE_SPECTRA)
     step_s = float(options.get("step_s") or vehicle_routes.DEFAULT_ROUTE_STEP_S)
     transmittance, label = _transmittance(options, default=DEFAULT_ROUTE_GLAZING)
@@ -587,16 +591,10 @@ def route_doses() -> Response:
     cutoff = float(options.get("roof_cutoff_elevation_deg", vehicle_routes.DEFAULT_ROOF_CUTOFF_ELEVATION_DEG))
     sky_view = float(options.get("cab_sky_view_factor", vehicle_routes.DEFAULT_CAB_SKY_VIEW_FACTOR))
     evaluate = engine_gateway.current(options.get("ozone_climatology")).dose_evaluator(spectra, transmittance, label, "routes")
-    try:
+    with records_named(name_route_error, len(raw_routes), "route"):
         out = vehicle_routes.route_doses(points, evaluate, per_route=per_route, driver_side=side,
                                          step_s=step_s, roof_cutoff_elevation_deg=cutoff,
                                          sky_view_factor=sky_view, spectra=spectra)
-    except ValueError as error:
-        message = str(error)
-        index = int(message.split()[1].rstrip(",:")) if message.startswith("route ") else None
-        raise Problem(422, "invalid-records", "The batch has invalid records", "Nothing was computed.",
-                      [FieldError(field=f"routes[{index}]" if index is not None else "routes", reason=message,
-                                  index=index, id=_record_id(ids, index) if index is not None else None)]) from None
     metrics.count_records(ROUTES_ROUTE, len(raw_routes))
     columns: dict[str, list] = {
         "id": ids.tolist(),

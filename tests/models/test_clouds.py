@@ -4,6 +4,7 @@ import pytest
 from pvlib import atmosphere, clearsky
 
 from uvdose.models import clouds
+from uvdose.models.record_errors import RecordErrors
 
 
 def test_kasten_czeplak_overcast_and_clear():
@@ -48,19 +49,42 @@ def test_cmf_from_global_irradiance():
         [1.0, np.sqrt(0.5)])
 
 
-@pytest.mark.parametrize("call,message", [
-    (lambda: clouds.cmf_from_value([1.0, 1.6]), r"record 1: cloud_modification_factor"),
-    (lambda: clouds.cmf_from_value([-0.1]), r"record 0: cloud_modification_factor"),
-    (lambda: clouds.cloud_fraction_from_oktas([3, 9]), r"record 1: cloud_cover_oktas"),
-    (lambda: clouds.cloud_fraction_from_oktas([2.5]), r"record 0: cloud_cover_oktas"),
-    (lambda: clouds.cmf_from_cloud_fraction([1.2]), r"record 0: cloud_cover_fraction"),
-    (lambda: clouds.cmf_from_global_irradiance([-5.0], [30.0]), r"record 0: global_horizontal"),
-    (lambda: clouds.cmf_from_global_irradiance([3000.0], [30.0]), r"at most 1.5 times"),
-    (lambda: clouds.resolve_cmf([0.5, np.nan], [0.2, 0.3]), r"record 0: give only one"),
+@pytest.mark.parametrize("call,index,field,message", [
+    (lambda: clouds.cmf_from_value([1.0, 1.6]), 1, "cloud_modification_factor", r"record 1: cloud_modification_factor=1.6"),
+    (lambda: clouds.cmf_from_value([-0.1]), 0, "cloud_modification_factor", r"record 0: cloud_modification_factor"),
+    (lambda: clouds.cloud_fraction_from_oktas([3, 9]), 1, "cloud_cover_oktas", r"record 1: cloud_cover_oktas=9"),
+    (lambda: clouds.cloud_fraction_from_oktas([2.5]), 0, "cloud_cover_oktas", r"record 0: cloud_cover_oktas"),
+    (lambda: clouds.cmf_from_cloud_fraction([1.2]), 0, "cloud_cover_fraction", r"record 0: cloud_cover_fraction"),
+    (lambda: clouds.cmf_from_global_irradiance([-5.0], [30.0]), 0, "measured_ghi_w_m2", r"record 0: measured_ghi"),
+    (lambda: clouds.cmf_from_global_irradiance([3000.0], [30.0]), 0, "measured_ghi_w_m2", r"more than 1.5 times"),
+    (lambda: clouds.resolve_cmf([0.5, np.nan], [0.2, 0.3]), 0, "cloud_cover_fraction", r"record 0: cloud_cover_frac"),
 ])
-def test_bad_cloud_inputs_name_record_and_field(call, message):
-    with pytest.raises(ValueError, match=message):
+def test_bad_cloud_inputs_name_record_and_field(call, index, field, message):
+    with pytest.raises(RecordErrors, match=message) as raised:
         call()
+    assert [(e.index, e.field) for e in raised.value.errors] == [(index, field)]
+
+
+def test_every_bad_record_is_named_in_record_order():
+    with pytest.raises(RecordErrors) as raised:
+        clouds.resolve_cmf([0.5, np.nan, 0.7, 0.9], None, [np.nan, 3, 2, 1])
+    assert [(e.index, e.field) for e in raised.value.errors] == [
+        (2, "cloud_cover_oktas"), (3, "cloud_cover_oktas")]
+
+
+def test_implausible_measurements_are_refused_by_record():
+    # Local noon near Tucson on 21 June 2026; measurements invented at 1, 2 and 3 times the
+    # clear-sky GHI.
+    t = np.array([1781895600.0] * 3)
+    lat, lon = np.full(3, 32.2), np.full(3, -110.9)
+    clear = clouds.clear_sky_global_horizontal_w_m2(
+        clouds.solar_position(t, lat, lon).zenith_deg)
+    with pytest.raises(RecordErrors) as raised:
+        clouds.cmf_from_measured_global_irradiance(clear * [1.0, 2.0, 3.0], t, lat, lon,
+                                                   np.full(3, np.nan), np.full(3, np.nan))
+    assert [(e.index, e.field) for e in raised.value.errors] == [
+        (1, "measured_ghi_w_m2"), (2, "measured_ghi_w_m2")]
+    assert raised.value.errors[0].reason == clouds.IMPLAUSIBLE_MEASUREMENT
 
 
 def test_enhancement_above_one_is_accepted_and_resolve_mixes_sources():

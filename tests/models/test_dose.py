@@ -5,6 +5,7 @@ import numpy as np
 import pytest
 
 from uvdose.models import dose
+from uvdose.models.record_errors import RecordErrors
 from uvdose.models.solar_geometry import solar_position
 
 EQUINOX_2026 = 1773964800.0  # 2026-03-20 00:00 UTC
@@ -75,8 +76,9 @@ def test_night_window_adds_nothing():
 
 
 def test_window_errors():
-    with pytest.raises(ValueError, match="window 1: end must not precede start"):
-        dose.trapezoid_nodes([0.0, 100.0], [10.0, 50.0], 600)
+    with pytest.raises(RecordErrors, match="window 1: end_unix_s must be finite and must not precede") as raised:
+        dose.trapezoid_nodes([0.0, 100.0, 5.0], [10.0, 50.0, 1.0], 600)
+    assert [(e.index, e.field) for e in raised.value.errors] == [(1, "end_unix_s"), (2, "end_unix_s")]
     with pytest.raises(ValueError, match="step_s must be between"):
         dose.trapezoid_nodes([0.0], [10.0], 1.0)
 

@@ -14,6 +14,7 @@ from scipy.interpolate import RegularGridInterpolator
 from uvdose.models import action_spectra, atmosphere, clear_sky, irradiance_table
 from uvdose.models.irradiance_table import (AOD_NODES, DEFAULT_AEROSOL_TYPE, OZONE_NODES_DU,
                                      PRESSURE_NODES_HPA, ZENITH_NODES_DEG)
+from uvdose.models.record_errors import RecordErrors
 from uvdose.models.spectral_grid import WAVELENGTH_NM
 
 SPECTRA = list(action_spectra.ACTION_SPECTRA)
@@ -136,5 +137,6 @@ def test_table_method_names_the_record_and_field_it_cannot_serve():
                 surface_albedo=0.05, aod_550=0.1, angstrom_exponent=DEFAULT_AEROSOL_TYPE[0],
                 single_scattering_albedo=DEFAULT_AEROSOL_TYPE[1],
                 asymmetry_factor=DEFAULT_AEROSOL_TYPE[2])
-    with pytest.raises(ValueError, match=r"record 1: pressure_hpa 400 hPa"):
+    with pytest.raises(RecordErrors, match=r"record 1: pressure_hpa=400 is outside the precomputed") as raised:
         clear_sky.spectral_irradiance(**args, method="table")
+    assert [(e.index, e.field) for e in raised.value.errors] == [(1, "pressure_hpa")]

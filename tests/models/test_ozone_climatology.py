@@ -12,6 +12,7 @@ from uvdose.models.ozone_climatology import (
     day_of_year_from_unix,
     van_heuklon_ozone_du,
 )
+from uvdose.models.record_errors import RecordErrors
 
 DAYS = np.arange(1.0, 366.0)
 FIT = "van_heuklon_1979"
@@ -226,8 +227,9 @@ def test_vectorised_broadcasting():
 )
 def test_bad_input_names_field_and_record(args, field):
     lat, lon, day = args
-    with pytest.raises(ValueError, match=rf"{field}.*records \[1\]"):
+    with pytest.raises(RecordErrors, match=rf"record 1: {field}") as raised:
         fit_ozone([0.0, lat], [0.0, lon], [1.0, day])
+    assert [(e.index, e.field) for e in raised.value.errors] == [(1, field)]
 
 
 def test_day_of_year_from_unix():

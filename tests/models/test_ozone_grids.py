@@ -4,6 +4,7 @@ import pytest
 
 from uvdose.models.ozone_climatology import climatological_ozone_du, day_of_year_from_unix
 from uvdose.models.ozone_grids import OzoneGrid, OzoneGridError, OzoneResolver
+from uvdose.models.record_errors import RecordErrors
 
 # An invented regional grid for a demo scenario of our own (values are not data).
 LATS = np.array([40.0, 42.5, 45.0])
@@ -278,8 +279,9 @@ def test_resolver_without_grids_is_the_climatology():
     ],
 )
 def test_resolver_rejects_bad_records_by_index(lat, lon, t, client, message):
-    with pytest.raises(ValueError, match=rf"{message}.*records \[1\]"):
+    with pytest.raises(RecordErrors, match=rf"record 1: {message}") as raised:
         OzoneResolver().resolve([0.0, lat], [0.0, lon], [0.0, t], [np.nan, client])
+    assert [(e.index, e.field) for e in raised.value.errors] == [(1, message)]
 
 
 def test_from_paths_in_order(tmp_path):

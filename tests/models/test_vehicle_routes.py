@@ -3,6 +3,7 @@ import numpy as np
 import pytest
 
 from uvdose.models import receivers, vehicle_routes
+from uvdose.models.record_errors import RecordErrors
 from uvdose.models.solar_geometry import solar_position
 
 T0 = 1781870400.0  # 2026-06-21 12:00 UTC
@@ -77,8 +78,9 @@ def test_stationary_leg_keeps_previous_heading_and_still_route_is_rejected():
     np.testing.assert_allclose(_wrapped(seen[0]["receiver_azimuth_deg"]), 0.0, atol=0.1)
     still = vehicle_routes.points_from_lists([{"time_unix_s": [T0, T0 + 60], "latitude_deg": [1.0, 1.0],
                                        "longitude_deg": [2.0, 2.0]}])
-    with pytest.raises(ValueError, match="route 0: all points at one position"):
+    with pytest.raises(RecordErrors, match="route 0: has all its points at one position") as raised:
         vehicle_routes.route_doses(still, constant)
+    assert [(e.index, e.point, e.field) for e in raised.value.errors] == [(0, None, None)]
 
 
 def _split_sky(columns):
@@ -106,14 +108,18 @@ def test_roof_shades_the_beam_above_the_cutoff():
     assert open_sky > 1.1 * shaded  # heading south, driver on the left faces east: beam adds
 
 
-@pytest.mark.parametrize("route,message", [
-    ({"time_unix_s": [T0], "latitude_deg": [1.0], "longitude_deg": [1.0]}, "needs at least two points"),
+@pytest.mark.parametrize("route,message,named", [
+    ({"time_unix_s": [T0], "latitude_deg": [1.0], "longitude_deg": [1.0]}, "needs at least two points",
+     [(1, None, None)]),
     ({"time_unix_s": [T0, T0], "latitude_deg": [1.0, 1.1], "longitude_deg": [1.0, 1.0]},
-     r"point 1: time must be later"),
+     r"point 1: time_unix_s must be later", [(1, 1, "time_unix_s")]),
     ({"time_unix_s": [T0, T0 + 9], "latitude_deg": [1.0, 91.0], "longitude_deg": [1.0, 1.0]},
-     r"point 1: latitude_deg"),
+     r"point 1: latitude_deg=91", [(1, 1, "latitude_deg")]),
+    ({"time_unix_s": [T0, T0 + 9, T0 + 5], "latitude_deg": [-91.0, 1.0, 1.0], "longitude_deg": [1.0, 1.0, 181.0]},
+     r"point 0: latitude_deg=-91", [(1, 0, "latitude_deg"), (1, 2, "longitude_deg"), (1, 2, "time_unix_s")]),
 ])
-def test_bad_routes_name_route_and_point(route, message):
+def test_bad_routes_name_route_and_point(route, message, named):
     ok = {"time_unix_s": [T0, T0 + 60], "latitude_deg": [0.0, 0.1], "longitude_deg": [0.0, 0.0]}
-    with pytest.raises(ValueError, match=rf"route 1.*{message}"):
+    with pytest.raises(RecordErrors, match=rf"route 1.*{message}") as raised:
         vehicle_routes.route_doses(vehicle_routes.points_from_lists([ok, route]), constant)
+    assert [(e.index, e.point, e.field) for e in raised.value.errors] == named  # route, point order

@@ -139,9 +139,18 @@ def test_route_errors_name_route_and_field(client):
     r = _post(client, "/v1/doses/routes", {"routes": [{"id": "ok", "points": DELIVERY},
                                                       {"id": "late", "points": backwards}]})
     assert r.status_code == 422
-    error = r.get_json()["errors"][0]
-    assert (error["index"], error["id"], error["field"]) == (1, "late", "routes[1]")
-    assert "time must be later" in error["reason"]
+    # The engine's route checks name the value by its place in the body, as the schema's do.
+    assert _errors_of(r) == {(1, "late", "routes[1].points[1].time"): "must be later than the previous point's"}
+    feature = {"type": "Feature", "id": "late-geo",
+               "geometry": {"type": "LineString", "coordinates": [[p["lon"], p["lat"]] for p in backwards]},
+               "properties": {"times": [p["time"] for p in backwards]}}
+    still = {"id": "parked", "points": [dict(DELIVERY[0]), dict(DELIVERY[0], time="2026-07-15T09:10:00Z")]}
+    r = _post(client, "/v1/doses/routes", {"routes": [feature, still]})
+    assert _errors_of(r) == {
+        (0, "late-geo", "routes[0].properties.times[1]"): "must be later than the previous point's"}
+    r = _post(client, "/v1/doses/routes", {"routes": [{"id": "ok", "points": DELIVERY}, still]})
+    assert _errors_of(r) == {(1, "parked", "routes[1]"): "has all its points at one position, so the "
+                             "heading (and the driver-side window) is unknown"}
     r = _post(client, "/v1/doses/routes", {"routes": [{"id": "x", "points": DELIVERY}], "driver_side": "middle"})
     assert r.status_code == 422 and (None, None, "driver_side") in _problem_fields(r)
     r = _post(client, "/v1/doses/routes", {"routes": [{"id": "x", "points": [dict(DELIVERY[0], time="09:00")]
