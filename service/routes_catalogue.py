@@ -63,5 +63,6 @@ def catalogue():
         "filters": _listing("uvdose.models.filters"),
         "record_fields": record_fields(),
         "limits": {"max_records": current_app.config["UVDOSE_MAX_RECORDS"],
-                   "max_body_bytes": current_app.config["MAX_CONTENT_LENGTH"]},
+                   "max_body_bytes": current_app.config["MAX_CONTENT_LENGTH"],
+                   "max_full_solve_records": current_app.config["UVDOSE_MAX_FULL_SOLVE_RECORDS"]},
     })

@@ -102,9 +102,17 @@ _SECONDS_PER_DAY = 86400
 
 # -- shared option fields -------------------------------------------------------------
 
+MAX_CURVE_POINTS = 2000
+"""Nodes accepted in a client's transmittance curve (a 0.1 nm curve over 200 nm fits)."""
+
+
+def _curve_nodes() -> validate.Length:
+    return validate.Length(min=2, max=MAX_CURVE_POINTS, error="must have between {min} and {max} entries")
+
+
 class CurveSchema(OptionsSchema):
-    wavelength_nm = fields.List(StrictNumber(allow_none=False), required=True)
-    transmittance = fields.List(StrictNumber(allow_none=False), required=True)
+    wavelength_nm = fields.List(StrictNumber(allow_none=False), required=True, validate=_curve_nodes())
+    transmittance = fields.List(StrictNumber(allow_none=False), required=True, validate=_curve_nodes())
 
 
 class DoseOptionsSchema(OptionsSchema):

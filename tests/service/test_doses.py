@@ -75,6 +75,17 @@ def test_unknown_glazing_and_bad_curve_are_option_errors(client):
     assert r.status_code == 422 and "must cover 280–400 nm" in r.get_json()["errors"][0]["reason"]
 
 
+def test_a_transmittance_curve_has_at_most_2000_nodes(client):
+    nodes = np.linspace(280, 400, 2001).tolist()
+    r = _post(client, "/v1/doses/windows", {"records": [WINDOW], "transmittance_curve": {
+        "wavelength_nm": nodes, "transmittance": [0.5] * len(nodes)}})
+    assert {field for _, _, field in _problem_fields(r)} == {"transmittance_curve.wavelength_nm",
+                                                           "transmittance_curve.transmittance"}
+    r = _post(client, "/v1/doses/windows", {"records": [WINDOW], "transmittance_curve": {
+        "wavelength_nm": nodes[:2000:2] + [400.0], "transmittance": [0.5] * 1001}})
+    assert r.status_code == 200
+
+
 def test_field_season_sums_and_clear_sky_ratio(client):
     body = {"records": [{"id": "north-plot", "lat": 52.1, "lon": 5.2, "surface_type": "grass"}],
             "first_day": "2026-05-01", "last_day": "2026-05-03", "step_s": 1800,

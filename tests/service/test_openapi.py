@@ -38,31 +38,6 @@ def test_the_contract_client_rejects_an_undocumented_body(app, contract_client_f
         contract_client_for(app).get("/livez")
 
 
-def test_openapi_states_the_ranges_the_record_schema_enforces(openapi_spec):
-    # One source of truth: the marshmallow declarations; openapi.yaml must say the same.
-    from uvdose.service.column_checks import column_rules
-    from uvdose.service.record_fields import EARLIEST_TIME, TIME_BEFORE
-    from uvdose.service.irradiance_batch import IrradianceRecordSchema
-
-    record = openapi_spec["components"]["schemas"]["IrradianceRecord"]
-    rules = {rule.wire: rule for rule in column_rules(IrradianceRecordSchema())}
-    assert set(record["properties"]) == set(rules)
-    assert set(record["required"]) == {wire for wire, rule in rules.items() if rule.required}
-    for wire, rule in rules.items():
-        documented = record["properties"][wire]
-        if rule.kind == "number":
-            assert (documented["minimum"], documented["maximum"]) == (rule.minimum, rule.maximum), wire
-        elif rule.kind == "time":
-            assert documented["x-earliest"] == EARLIEST_TIME.isoformat().replace("+00:00", "Z")
-            assert documented["x-before"] == TIME_BEFORE.isoformat().replace("+00:00", "Z")
-            assert rule.minimum == EARLIEST_TIME.timestamp() and rule.maximum == TIME_BEFORE.timestamp()
-            assert not rule.max_inclusive
-        else:
-            assert documented.get("maxLength") == rule.max_length, wire
-    columns = openapi_spec["components"]["schemas"]["IrradianceColumnsRequest"]["properties"]["columns"]
-    assert set(columns["properties"]) == set(rules)
-
-
 def test_openapi_lists_the_action_spectra_the_models_define(openapi_spec):
     from uvdose.models.action_spectra import ACTION_SPECTRA
     from uvdose.models.engine import DEFAULT_SPECTRA
