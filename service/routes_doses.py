@@ -506,6 +506,9 @@ def _flatten_routes(raw_routes: list) -> _RouteBatch:
             parsed = None
         else:
             parsed = route["points"], {key: value for key, value in route.items() if key != "points"}
+        if parsed is not None and len(parsed[0]) < 2:
+            where = ".geometry.coordinates" if flat.is_feature[-1] else ".points"
+            flat.error(index, where, "needs at least two points", route)
         points, conditions = parsed or ([], {})
         flat.conditions.append(conditions)
         flat.points.extend(points)

@@ -145,6 +145,16 @@ def test_windscreen_and_side_glass_facts_through_the_api(client):
     assert doses["clear_side_glass"] < 0.5 * doses["open_window"]
 
 
+def test_a_route_needs_two_points_whatever_its_form(client):
+    feature = {"type": "Feature", "id": "one-geo", "geometry": {"type": "LineString", "coordinates": [[0.0, 51.5]]},
+               "properties": {"times": [DELIVERY[0]["time"]]}}
+    r = _post(client, "/v1/doses/routes", {"routes": [{"id": "empty", "points": []},
+                                                      {"id": "one", "points": DELIVERY[:1]}, feature]})
+    assert _errors_of(r) == {(0, "empty", "routes[0].points"): "needs at least two points",
+                             (1, "one", "routes[1].points"): "needs at least two points",
+                             (2, "one-geo", "routes[2].geometry.coordinates"): "needs at least two points"}
+
+
 def test_route_errors_name_route_and_field(client):
     backwards = [dict(DELIVERY[0]), dict(DELIVERY[0], lat=48.2)]
     r = _post(client, "/v1/doses/routes", {"routes": [{"id": "ok", "points": DELIVERY},
