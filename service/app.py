@@ -6,7 +6,8 @@ from typing import Any
 
 from flask import Flask
 
-from uvdose.service import auth, engine_gateway, metrics, problems, request_log
+from uvdose.service import (auth, engine_gateway, metrics, negotiation, problems, request_log,
+                            response_compression)
 from uvdose.service.config import settings_from_environment
 
 
@@ -21,10 +22,13 @@ def create_app(config: dict[str, Any] | None = None) -> Flask:
     app.json.compact = True
     app.json.sort_keys = False
 
+    # Registered first, so its after_request hook runs last and codes the final body.
+    response_compression.init_app(app)
     problems.init_app(app)
     request_log.init_app(app)
     auth.init_app(app)
     metrics.init_app(app)
+    negotiation.init_app(app)  # Accept against what each view produces, before any body is read
     engine_gateway.init_app(app)  # ozone resolver, cache, the engine's tables loaded now
     _register_blueprints(app)
     return app

@@ -125,6 +125,8 @@ SETTINGS: tuple[Setting, ...] = (
           "Path of the OpenAPI document served at /openapi.yaml (default: the packaged one)."),
     _same("UVDOSE_HANDLE_ERRORS_AS_PROBLEMS", True, _switch,
           "Turn unexpected exceptions into a 500 problem (switch off only to debug)."),
+    _same("UVDOSE_COMPRESS_MIN_BYTES", 1024, _whole_number(0),
+          "Smallest answer body sent gzip- or zstd-coded when the client's Accept-Encoding asks for it."),
     # Total ozone
     _same("UVDOSE_OZONE_GRIDS", None, _text,
           "Operator total-ozone grid files, comma-separated, tried in order before the climatology."),

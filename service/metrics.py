@@ -25,6 +25,8 @@ from prometheus_client import (
     multiprocess,
 )
 
+from uvdose.service.negotiation import PROMETHEUS_TEXT_MEDIA_TYPE, produces
+
 _LATENCY_BUCKETS_S = (0.005, 0.01, 0.025, 0.05, 0.1, 0.25, 0.5, 1.0, 2.5, 5.0, 10.0, 30.0)
 
 HTTP_REQUESTS = Counter(
@@ -89,6 +91,7 @@ blueprint = Blueprint("metrics", __name__)
 
 
 @blueprint.get("/metrics")
+@produces(PROMETHEUS_TEXT_MEDIA_TYPE)
 def metrics_view() -> Response:
     body, content_type = exposition()
     return Response(body, content_type=content_type)

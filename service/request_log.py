@@ -21,7 +21,7 @@ ids, no query strings, no client address, no API keys, no ``Authorization`` head
 ``status``         response status code
 ``duration_ms``    wall time inside the app
 ``request_bytes``  declared request body size
-``response_bytes`` response body size when known
+``response_bytes`` response body size when known, before any content coding
 ``records``        batch size, when the route sets ``flask.g.uvdose_record_count``
 ``auth``           outcome recorded by :mod:`service.auth` (``off``, ``open``,
                    ``ok``, ``missing``, ``invalid``)

@@ -13,10 +13,12 @@ from typing import Any
 from flask import Blueprint, current_app
 
 from uvdose.models import MODEL_VERSION
+from uvdose.service.caching_headers import cacheable
 from uvdose.service.cautions import CAUTION
 from uvdose.service.column_checks import column_rules
 from uvdose.service.engine_gateway import default_spectra
 from uvdose.service.irradiance_batch import IrradianceRecordSchema
+from uvdose.service.negotiation import JSON_MEDIA_TYPE, produces
 from uvdose.service.wire_formats import json_response
 
 blueprint = Blueprint("catalogue", __name__)
@@ -53,8 +55,9 @@ def _surface_listing() -> list[dict[str, Any]]:
 
 
 @blueprint.get("/v1/catalogue")
+@produces(JSON_MEDIA_TYPE)
 def catalogue():
-    return json_response({
+    response = json_response({
         "model_version": MODEL_VERSION,
         "caution": CAUTION,
         "default_spectra": default_spectra(),
@@ -66,3 +69,5 @@ def catalogue():
                    "max_body_bytes": current_app.config["MAX_CONTENT_LENGTH"],
                    "max_full_solve_records": current_app.config["UVDOSE_MAX_FULL_SOLVE_RECORDS"]},
     })
+    # Behind API keys the answer is for key holders only: no shared cache may keep it.
+    return cacheable(response, shared=not current_app.extensions["uvdose_auth"].enabled)

@@ -13,6 +13,9 @@ from typing import Any
 import yaml
 from flask import Blueprint, Flask, Response, current_app
 
+from uvdose.service.caching_headers import cacheable
+from uvdose.service.negotiation import HTML_MEDIA_TYPE, YAML_MEDIA_TYPE, produces
+
 blueprint = Blueprint("docs", __name__)
 
 _HTTP_METHODS = ("get", "put", "post", "delete", "patch", "head", "options")
@@ -46,15 +49,17 @@ def openapi_document(app: Flask | None = None) -> tuple[str, dict[str, Any]]:
 
 
 @blueprint.get("/openapi.yaml")
+@produces(YAML_MEDIA_TYPE)
 def openapi_yaml() -> Response:
     text, _ = openapi_document()
-    return Response(text, mimetype="application/yaml")
+    return cacheable(Response(text, mimetype=YAML_MEDIA_TYPE), shared=True)
 
 
 @blueprint.get("/docs")
+@produces(HTML_MEDIA_TYPE)
 def docs_page() -> Response:
     _, spec = openapi_document()
-    return Response(render_html(spec), mimetype="text/html")
+    return cacheable(Response(render_html(spec), mimetype=HTML_MEDIA_TYPE), shared=True)
 
 
 def _ref_name(ref: str) -> str:

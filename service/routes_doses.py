@@ -40,6 +40,7 @@ from uvdose.models.spectral_grid import WAVELENGTH_NM
 from uvdose.service import engine_gateway, metrics
 from uvdose.service.cautions import DOSE_CAUTION
 from uvdose.service.column_checks import check_columns
+from uvdose.service.negotiation import JSON_MEDIA_TYPE, produces
 from uvdose.service.problems import (FieldError, NameRecordError, Problem, by_schema, invalid_records,
                                      records_named)
 from uvdose.service.record_fields import (
@@ -202,6 +203,7 @@ def _cmf_columns(columns: Mapping[str, np.ndarray], ids) -> np.ndarray:
 
 
 @blueprint.post(WINDOWS_ROUTE)
+@produces(JSON_MEDIA_TYPE)
 def windows() -> Response:
     batch, options = _read_records(_WINDOW_RECORDS, _WINDOW_OPTIONS)
     cols = dict(batch.columns)
@@ -335,6 +337,7 @@ def _daily_inputs(daily: Any, n_fields: int, first: np.datetime64, n_days: int):
 
 
 @blueprint.post(FIELDS_ROUTE)
+@produces(JSON_MEDIA_TYPE)
 def field_doses() -> Response:
     batch, options = _read_records(_FIELD_RECORDS, _FIELD_OPTIONS)
     first = np.datetime64(options["first_day"].isoformat(), "D")
@@ -580,6 +583,7 @@ def _read_routes(raw_routes: list) -> tuple[vehicle_routes.RoutePoints, dict[str
 
 
 @blueprint.post(ROUTES_ROUTE)
+@produces(JSON_MEDIA_TYPE)
 def route_doses() -> Response:
     negotiate(request)
     body = read_json_object(request.get_data(), request.mimetype, "a `routes` array")

@@ -11,16 +11,19 @@ from flask import Blueprint, jsonify
 
 from uvdose.models import MODEL_VERSION
 from uvdose.service import engine_gateway
+from uvdose.service.negotiation import JSON_MEDIA_TYPE, produces
 
 blueprint = Blueprint("health", __name__)
 
 
 @blueprint.get("/livez")
+@produces(JSON_MEDIA_TYPE)
 def livez():
     return jsonify({"status": "alive"})
 
 
 @blueprint.get("/readyz")
+@produces(JSON_MEDIA_TYPE)
 def readyz():
     engine = engine_gateway.engine_check()
     cache = engine_gateway.cache_check()

@@ -10,6 +10,7 @@ from __future__ import annotations
 from flask import Blueprint, Response, current_app, request
 
 from uvdose.service import engine_gateway, irradiance_batch, metrics
+from uvdose.service.negotiation import JSON_MEDIA_TYPE, produces
 from uvdose.service.wire_formats import CSV_MEDIA_TYPE, csv_response, json_response, negotiate, read_batch
 
 ROUTE = "/v1/irradiance"
@@ -21,6 +22,7 @@ _OPTIONS = irradiance_batch.IrradianceOptionsSchema()
 
 
 @blueprint.post(ROUTE)
+@produces(JSON_MEDIA_TYPE, CSV_MEDIA_TYPE)
 def irradiance() -> Response:
     media_type = negotiate(request)
     batch_request = read_batch(request, record_schema=_RECORDS, options_schema=_OPTIONS,

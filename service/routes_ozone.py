@@ -21,6 +21,7 @@ from flask import Blueprint, Response, current_app, g, request
 from uvdose.models import MODEL_VERSION
 from uvdose.service import engine_gateway, metrics
 from uvdose.service.cautions import OZONE_CAUTION
+from uvdose.service.negotiation import JSON_MEDIA_TYPE, produces
 from uvdose.service.record_fields import (
     LATITUDE,
     LONGITUDE,
@@ -72,6 +73,7 @@ _OPTIONS = OzoneOptionsSchema()
 
 
 @blueprint.post(ROUTE)
+@produces(JSON_MEDIA_TYPE, CSV_MEDIA_TYPE)
 def lookup_ozone() -> Response:
     media_type = negotiate(request)
     batch_request = read_batch(request, record_schema=_SCHEMA, options_schema=_OPTIONS,

@@ -21,10 +21,8 @@ from flask import Request, Response
 from marshmallow import Schema, ValidationError, fields
 
 from uvdose.service.column_checks import Batch, column_rules, validate_columns
+from uvdose.service.negotiation import CSV_MEDIA_TYPE, JSON_MEDIA_TYPE, chosen_media_type
 from uvdose.service.problems import FieldError, Problem
-
-JSON_MEDIA_TYPE = "application/json"
-CSV_MEDIA_TYPE = "text/csv"
 
 
 # ---------------------------------------------------------------------------------------
@@ -273,14 +271,10 @@ def query_options(query: Mapping[str, str], options_schema: Schema) -> dict[str,
 
 
 def negotiate(request: Request) -> str:
-    """The response media type the client accepts: JSON unless it asks for CSV; 406 if neither."""
-    if not request.headers.get("Accept"):
-        return JSON_MEDIA_TYPE
-    best = request.accept_mimetypes.best_match([JSON_MEDIA_TYPE, CSV_MEDIA_TYPE])
-    if best is None:
-        raise Problem(406, "not-acceptable", "Not Acceptable",
-                      f"This resource is available as {JSON_MEDIA_TYPE} or {CSV_MEDIA_TYPE}.")
-    return best
+    """The response media type negotiated for ``request`` before the view ran, among those
+    the view declared with :func:`service.negotiation.produces` (a 406 was answered if the
+    ``Accept`` header allows none)."""
+    return chosen_media_type()
 
 
 def json_response(body: Any, status: int = 200) -> Response:

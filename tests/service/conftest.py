@@ -27,7 +27,7 @@ from openapi_core.templating.paths.exceptions import OperationNotFound, PathNotF
 from openapi_schema_validator import OAS31Validator
 
 from werkzeug.test import EnvironBuilder
-from werkzeug.wrappers import Request
+from werkzeug.wrappers import Request, Response
 
 from uvdose.service.app import create_app
 
@@ -77,6 +77,23 @@ def _bodiless_copy(request: Request) -> Request:
                                   query_string=request.query_string.decode("latin-1"), headers=headers).get_environ())
 
 
+def _decoded(response):
+    """The response with its body decoded from its content coding (gzip, zstd), for the checks."""
+    coding = response.headers.get("Content-Encoding")
+    if coding is None:
+        return response
+    import gzip
+
+    import zstandard
+
+    data = response.get_data()
+    body = gzip.decompress(data) if coding == "gzip" else zstandard.ZstdDecompressor().decompressobj().decompress(data)
+    decoded = Response(body, status=response.status_code, headers=[
+        (k, v) for k, v in response.headers.items() if k.lower() not in ("content-encoding", "content-length")])
+    decoded.request = response.request
+    return decoded
+
+
 class ContractError(AssertionError):
     """A response the OpenAPI document does not allow."""
 
@@ -94,6 +111,7 @@ class ContractClient(FlaskClient):
 
     def check(self, response) -> None:
         request = WerkzeugOpenAPIRequest(_bodiless_copy(response.request))
+        response = _decoded(response)
         try:
             self.checker.validate_response(request, WerkzeugOpenAPIResponse(response))
         except (PathNotFound, OperationNotFound):
