@@ -246,3 +246,32 @@ def _carry_headings(heading, moving, leg_route, n_routes):
                       "window) is unknown", kind="route")
     source = np.where(forward_ok, last_moving, np.minimum(next_moving, heading.size - 1))
     return heading[source]
+
+
+def parked_doses(points: RoutePoints, evaluate: dose.Evaluator,
+                 per_route: Mapping[str, np.ndarray] | None = None,
+                 step_s: float = DEFAULT_ROUTE_STEP_S,
+                 spectra: Sequence[str] = ()) -> dict[str, np.ndarray]:
+    """Doses of the parked legs, which :func:`route_doses` leaves out: per route (R,), the
+    dose on a horizontal receiver under the open sky (no cab; the evaluator should carry no
+    glazing) at each parked leg's first fix, from that fix to the next.
+
+    An upper estimate of what a person standing at the stop receives: vertical body sites
+    get a fraction of the horizontal dose (the isotropic receiver model of
+    :mod:`models.receivers` gives it for any posture), and shade at the stop is not known.
+    Integrated like a time window (:func:`models.dose.window_doses`, trapezoid on the leg's
+    edges and every multiple of ``step_s``); routes without parked legs get 0.
+    """
+    _validate(points)
+    n_routes = points.n_routes
+    t = points.time_unix_s
+    starts_leg = np.append(points.route[1:] == points.route[:-1], False)
+    leg = np.flatnonzero(starts_leg & points.stop)
+    if leg.size == 0:
+        return {name: np.zeros(n_routes) for name in spectra}
+    leg_route = points.route[leg]
+    per_leg = {k: np.asarray(v)[leg_route] for k, v in (per_route or {}).items()}
+    per_leg.update(latitude_deg=points.latitude_deg[leg], longitude_deg=points.longitude_deg[leg])
+    out = dose.window_doses(per_leg, t[leg], t[leg + 1], evaluate, step_s=step_s, spectra=spectra or None)
+    return {name: np.bincount(leg_route, weights=values, minlength=n_routes)
+            for name, values in out["dose_j_m2"].items()}

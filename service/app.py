@@ -6,7 +6,7 @@ from typing import Any
 
 from flask import Flask
 
-from uvdose.service import (auth, engine_gateway, metrics, negotiation, problems, request_log,
+from uvdose.service import (auth, cautions, engine_gateway, metrics, negotiation, problems, request_log,
                             response_compression)
 from uvdose.service.config import settings_from_environment
 
@@ -25,6 +25,7 @@ def create_app(config: dict[str, Any] | None = None) -> Flask:
     # Registered first, so its after_request hook runs last and codes the final body.
     response_compression.init_app(app)
     problems.init_app(app)
+    cautions.init_app(app)  # the caution header on every answer
     request_log.init_app(app)
     auth.init_app(app)
     metrics.init_app(app)
@@ -42,3 +43,4 @@ def _register_blueprints(app: Flask) -> None:
     app.register_blueprint(import_module("uvdose.service.routes_irradiance").blueprint)
     app.register_blueprint(import_module("uvdose.service.routes_ozone").blueprint)
     app.register_blueprint(import_module("uvdose.service.routes_doses").blueprint)
+    app.register_blueprint(import_module("uvdose.service.routes_pictures").blueprint)

@@ -38,7 +38,8 @@ from flask import Flask, g, request
 from uvdose.service.config import ConfigurationError
 from uvdose.service.problems import TYPE_PREFIX, problem_response
 
-OPEN_PATHS = frozenset({"/livez", "/readyz", "/metrics", "/openapi.yaml", "/docs"})
+OPEN_PATHS = frozenset({"/livez", "/readyz", "/metrics", "/openapi.yaml", "/docs", "/docs/style.css",
+                        "/docs/page.js"})
 API_KEY_HEADER = "X-API-Key"
 HASH_PREFIX = "sha256:"
 _HEX_DIGEST = re.compile(r"[0-9a-fA-F]{64}")

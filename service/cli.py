@@ -181,7 +181,7 @@ def run_batch(
                                                            with_spectrum)
                 first = start == 0
                 if out_type == wire_formats.CSV_MEDIA_TYPE:
-                    stream.write(wire_formats.csv_text(irr.csv_columns(out, wavelength_nm, spectrum), header=first))
+                    stream.write(wire_formats.csv_text(irr.csv_columns(out, wavelength_nm, spectrum, chosen), header=first))
                 else:
                     if first:
                         head = orjson.dumps(irr.envelope(chosen, wavelength_nm),

@@ -14,7 +14,7 @@ import numpy as np
 
 from uvdose.models import MODEL_VERSION, clouds
 from uvdose.models.engine import effective_column
-from uvdose.service.cautions import CAUTION
+from uvdose.service import cautions
 from uvdose.service.engine_gateway import Gateway
 from uvdose.service.problems import by_schema, records_named
 from uvdose.service.record_fields import (
@@ -120,19 +120,22 @@ def spectrum_matrix(result: Mapping[str, np.ndarray]) -> tuple[np.ndarray, np.nd
 
 def envelope(spectra: list[str], wavelength_nm: np.ndarray | None) -> dict[str, Any]:
     """The response members besides the results."""
-    body: dict[str, Any] = {"model_version": MODEL_VERSION, "caution": CAUTION, "spectra": spectra}
+    body: dict[str, Any] = {"model_version": MODEL_VERSION, "caution": cautions.CAUTION,
+                            "figure_cautions": cautions.figure_cautions(spectra), "spectra": spectra}
     if wavelength_nm is not None:
         body["wavelength_nm"] = wavelength_nm
     return body
 
 
-def csv_columns(columns: Mapping[str, Any], wavelength_nm, spectrum) -> dict[str, list]:
-    """Flat columns plus one ``spectrum_w_m2_nm.<nm>`` column per wavelength when there is a spectrum."""
+def csv_columns(columns: Mapping[str, Any], wavelength_nm, spectrum, spectra: list[str]) -> dict[str, list]:
+    """Flat columns, one ``spectrum_w_m2_nm.<nm>`` column per wavelength when there is a
+    spectrum, and the ``caution`` column last (the caution and those of the ``spectra``)."""
     columns = as_lists(columns)
     if spectrum is not None:
         for index, nm in enumerate(wavelength_nm):
             columns[f"spectrum_w_m2_nm.{nm:g}"] = spectrum[:, index].tolist()
-    return columns
+    text = cautions.csv_caution(cautions.CAUTION, cautions.figure_cautions(spectra))
+    return cautions.with_caution_column(columns, text)
 
 
 def result_rows(columns: Mapping[str, Any], spectrum) -> list[dict[str, Any]]:

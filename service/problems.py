@@ -44,6 +44,62 @@ class FieldError:
         return {"index": self.index, "id": self.id, "field": self.field, "reason": self.reason}
 
 
+@dataclass(frozen=True)
+class ProblemType:
+    """One problem ``type`` the service answers with, as the docs page explains it."""
+
+    slug: str
+    status: int
+    title: str
+    meaning: str
+    remedy: str
+
+    @property
+    def uri(self) -> str:
+        return TYPE_PREFIX + self.slug if self.slug != "about:blank" else "about:blank"
+
+
+PROBLEM_TYPES: tuple[ProblemType, ...] = (
+    ProblemType("invalid-records", 422, "The batch has invalid records",
+                "One or more records have errors (errors in request-wide options found at the same "
+                "time are listed too). Nothing was computed.",
+                "Fix every entry of `errors`: each names the record's `index` and `id`, the `field` "
+                "(inside routes and the `daily` table, the value's path in the body) and the `reason`."),
+    ProblemType("invalid-options", 422, "The request options are invalid",
+                "Only the request's envelope or its options are wrong (a misspelt option, a query "
+                "option sent with a JSON body, a season that ends before it starts).",
+                "Fix the options named in `errors` (their `index` is null)."),
+    ProblemType("malformed-body", 400, "The request body cannot be read",
+                "The body is not valid JSON or CSV, or not the object the endpoint takes.",
+                "Check the body's syntax and encoding (UTF-8)."),
+    ProblemType("too-many-records", 413, "Too many records in one request",
+                "More records (or route points) than one request may carry; `max_records` says how "
+                "many.", "Split the batch into several requests."),
+    ProblemType("too-many-full-solve-records", 413, "Too many records for the full solve",
+                "More records or dose samples fall outside the precomputed table (a client aerosol "
+                "type, pressure below 500 hPa, AOD above 2, ozone below 100 DU) than one request may "
+                "send to the full radiative-transfer solve; `max_full_solve_records` says how many.",
+                "Split the batch, or leave the aerosol type at its default."),
+    ProblemType("unsupported-media-type", 415, "Unsupported Media Type",
+                "The body is neither `application/json` nor `text/csv` (where the endpoint takes CSV).",
+                "Send the body with one of the media types the operation lists."),
+    ProblemType("not-acceptable", 406, "Not Acceptable",
+                "None of the media types in the `Accept` header can be produced by this operation.",
+                "Ask for one of the media types the operation's 200 answer lists."),
+    ProblemType("unauthorized", 401, "Unauthorized",
+                "This deployment requires an API key and the request sent none, or one it does not "
+                "accept (`WWW-Authenticate` names the Bearer scheme).",
+                "Send the key as `X-API-Key: <key>` or `Authorization: Bearer <key>`."),
+    ProblemType("about:blank", 0, "the HTTP reason phrase",
+                "Plain HTTP errors: an unknown path (404), a method the path does not take (405, with "
+                "`Allow`), a body over the size limit (413), an unexpected failure (500, logged, no "
+                "internals in the body).",
+                "Follow the status; for a 500, retry later and report it with the `X-Request-ID`."),
+)
+"""Every problem ``type`` the service answers with (``tests/service/test_docs.py`` holds the
+code and openapi.yaml to this list)."""
+
+
 @dataclass
 class Problem(Exception):
     """Raise anywhere in a request to answer with a problem document."""

@@ -38,7 +38,7 @@ from uvdose.models import MODEL_VERSION, clouds, dose, exposure, filters, vehicl
 from uvdose.models.record_errors import RecordError
 from uvdose.models.spectral_grid import WAVELENGTH_NM
 from uvdose.service import engine_gateway, metrics
-from uvdose.service.cautions import DOSE_CAUTION
+from uvdose.service import cautions
 from uvdose.service.column_checks import check_columns
 from uvdose.service.negotiation import JSON_MEDIA_TYPE, produces
 from uvdose.service.problems import (FieldError, NameRecordError, Problem, by_schema, invalid_records,
@@ -166,9 +166,17 @@ def _record_id(ids, index: int):
     return ids[index] if isinstance(ids[index], str) else None
 
 
-def _common(spectra, step_s, label) -> dict[str, Any]:
-    return {"model_version": MODEL_VERSION, "caution": DOSE_CAUTION, "spectra": list(spectra),
+def _common(spectra, step_s, label, caution: str, results: list[dict[str, Any]]) -> dict[str, Any]:
+    """The members every dose answer has; ``figure_cautions`` for the figures ``results`` hold."""
+    figures = set(spectra).union(*(result.keys() for result in results))
+    return {"model_version": MODEL_VERSION, "caution": caution,
+            "figure_cautions": cautions.figure_cautions(figures), "spectra": list(spectra),
             "step_s": step_s, "glazing": label}
+
+
+def _longer_than_limit_period(duration_s: np.ndarray) -> list[bool]:
+    """Per result: does it span more than the ICNIRP limit's 8-hour period?"""
+    return (np.asarray(duration_s) > exposure.ICNIRP_REFERENCE_DAY_S).tolist()
 
 
 # -- windows --------------------------------------------------------------------------
@@ -233,9 +241,12 @@ def windows() -> Response:
         "cloud_factor": [None if np.isnan(x) else x for x in cols["cloud_modification_factor"].tolist()],
     }
     columns.update(_exposure_rows(doses, out["final_rate_w_m2"]))
-    body = _common(spectra, step_s, label)
+    if "icnirp_limit_fraction" in columns:
+        columns["limit_period_exceeded"] = _longer_than_limit_period(length)
+    results = rows_from_columns(columns)
+    body = _common(spectra, step_s, label, cautions.DOSE_CAUTION, results[:1])
     body["samples"] = out["samples"]
-    body["results"] = rows_from_columns(columns)
+    body["results"] = results
     return json_response(body)
 
 
@@ -382,7 +393,7 @@ def field_doses() -> Response:
             "peak_uv_index": peak[f],
         })
         results.append({"id": record_id, "days": day_rows})
-    body = _common(spectra, step_s, label)
+    body = _common(spectra, step_s, label, cautions.FIELD_CAUTION, [])
     body.update(first_day=dates[0], last_day=dates[-1], samples=season.samples, results=results,
                 quadrature=(f"trapezoid:{step_s:g}s" if step_s is not None
                             else f"gauss_legendre:{dose.DEFAULT_GAUSS_NODES}"))
@@ -395,6 +406,7 @@ class RouteOptionsSchema(DoseOptionsSchema):
     driver_side = Text(validate=validate.OneOf(["left", "right"], error="must be 'left' or 'right'"))
     roof_cutoff_elevation_deg = StrictNumber(validate=between(0, 90))
     cab_sky_view_factor = StrictNumber(validate=between(0, 1))
+    parked_dose = StrictBoolean(load_default=False)
     routes = fields.Raw(required=True)  # read as RouteConditionsSchema and RoutePointSchema records
 
 
@@ -618,7 +630,20 @@ def route_doses() -> Response:
         "peak_uv_index": out.peak_uv_index.tolist(),
     }
     columns.update(_exposure_rows(out.dose_j_m2, out.final_rate_w_m2))
-    response = _common(spectra, step_s, label)
+    if "icnirp_limit_fraction" in columns:
+        first_fix = np.full(len(ids), np.inf)
+        last_fix = np.full(len(ids), -np.inf)
+        np.minimum.at(first_fix, points.route, points.time_unix_s)
+        np.maximum.at(last_fix, points.route, points.time_unix_s)
+        columns["limit_period_exceeded"] = _longer_than_limit_period(last_fix - first_fix)
+    columns["parked_time_excluded"] = (out.parked_s > 0).tolist()
+    if options["parked_dose"]:
+        open_sky = engine_gateway.current(options.get("ozone_climatology")).dose_evaluator(
+            spectra, None, "none", "routes-parked")
+        parked = vehicle_routes.parked_doses(points, open_sky, per_route=per_route, step_s=step_s, spectra=spectra)
+        columns["parked_dose_j_m2"] = rows_from_columns({k: v.tolist() for k, v in parked.items()})
+    results = rows_from_columns(columns)
+    response = _common(spectra, step_s, label, cautions.ROUTE_CAUTION, results[:1])
     response.update(driver_side=side, roof_cutoff_elevation_deg=cutoff, cab_sky_view_factor=sky_view,
-                    samples=out.samples, results=rows_from_columns(columns))
+                    samples=out.samples, results=results)
     return json_response(response)

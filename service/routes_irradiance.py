@@ -33,7 +33,7 @@ def irradiance() -> Response:
         engine_gateway.current(options.get("ozone_climatology")), batch.columns, batch.ids, spectra, options["include_spectrum"])
     metrics.count_records(ROUTE, len(batch))
     if media_type == CSV_MEDIA_TYPE:
-        return csv_response(irradiance_batch.csv_columns(columns, wavelength_nm, spectrum))
+        return csv_response(irradiance_batch.csv_columns(columns, wavelength_nm, spectrum, spectra))
     body = irradiance_batch.envelope(spectra, wavelength_nm)
     if batch_request.layout == "columns":
         if spectrum is not None:

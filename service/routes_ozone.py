@@ -20,7 +20,7 @@ from flask import Blueprint, Response, current_app, g, request
 
 from uvdose.models import MODEL_VERSION
 from uvdose.service import engine_gateway, metrics
-from uvdose.service.cautions import OZONE_CAUTION
+from uvdose.service.cautions import OZONE_CAUTION, with_caution_column
 from uvdose.service.negotiation import JSON_MEDIA_TYPE, produces
 from uvdose.service.record_fields import (
     LATITUDE,
@@ -94,7 +94,7 @@ def lookup_ozone() -> Response:
     }
     metrics.count_records(ROUTE, n)
     if media_type == CSV_MEDIA_TYPE:
-        return csv_response(out)
+        return csv_response(with_caution_column(out, OZONE_CAUTION))
     body: dict[str, Any] = {
         "model_version": MODEL_VERSION,
         "caution": OZONE_CAUTION,

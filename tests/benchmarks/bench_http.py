@@ -2,7 +2,7 @@
 
     python tests/benchmarks/bench_http.py [--sizes 1 100 1000 10000] [--repeats 7]
 
-Scenario (invented, our own): the "Quai Nord" parcel depot's planner posts the day's van
+Scenario (invented, our own): the "Vaubrise" parcel depot's planner posts the day's van
 stops (mid-latitude positions, times over one summer month, ids, a cloud factor) and asks
 for the default spectra. The grid-cell cache is off, so every request computes.
 

@@ -3,7 +3,7 @@ and plain-Python alternatives (a script; pytest does not collect it).
 
     python tests/benchmarks/bench_rows.py [--rows 10000] [--repeats 15]
 
-Scenario (invented, our own): the "Quai Nord" parcel depot's planner gets 10 000
+Scenario (invented, our own): the "Vaubrise" parcel depot's planner gets 10 000
 irradiance results back as rows: an id, four scalars, three effective irradiances nested
 under ``effective_w_m2`` and seven used values, i.e. the columns
 ``service.irradiance_batch.result_rows`` turns into rows.

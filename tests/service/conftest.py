@@ -54,6 +54,9 @@ def openapi_checker(openapi_spec):
         "text/csv": _text,
         "application/yaml": _text,
         "text/html": _text,
+        "text/css": _text,
+        "text/javascript": _text,
+        "image/svg+xml": _text,
     })
     return OpenAPI.from_dict(spec, config=config)
 

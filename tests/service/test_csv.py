@@ -6,7 +6,7 @@ import pytest
 
 URL = "/v1/irradiance"
 
-# Demo scenario of our own: the invented "Quai Nord" parcel depot's morning van stops.
+# Demo scenario of our own: the invented "Vaubrise" parcel depot's morning van stops.
 STOPS_CSV = (
     "id,time,lat,lon,elevation_m,cloud_factor,surface_type\n"
     "van-3/stop-1,2026-07-14T09:10:00+02:00,45.7485,4.8467,170,,asphalt\n"
@@ -31,7 +31,7 @@ def test_csv_in_csv_out_has_one_line_per_record_and_the_documented_header(client
     assert list(rows[0]) == [
         "id", "solar_zenith_deg", "solar_azimuth_deg", "uv_index", "exposure_category",
         "effective_w_m2.erythema", "effective_w_m2.actinic_icnirp", "uvb_w_m2", "uva_w_m2",
-        "ozone_du", "ozone_source", "pressure_hpa", "surface_albedo", "cloud_factor"]
+        "ozone_du", "ozone_source", "pressure_hpa", "surface_albedo", "cloud_factor", "caution"]
     assert [float(row["cloud_factor"]) for row in rows] == [1.0, 0.7, 1.2]  # empty cell = default 1
     assert float(rows[2]["surface_albedo"]) == pytest.approx(0.1)
 

@@ -10,7 +10,7 @@ from prometheus_client.parser import text_string_to_metric_families
 
 pytestmark = pytest.mark.gunicorn
 
-# Demo scenario of our own: the invented "Quai Nord" parcel depot's yard, one van's day.
+# Demo scenario of our own: the invented "Vaubrise" parcel depot's yard, one van's day.
 STOPS = [{"id": f"yard-{i}", "time": f"2026-08-03T{8 + i // 4:02d}:{(i % 4) * 15:02d}:00+02:00",
           "lat": 45.7485, "lon": 4.8467, "surface_type": "asphalt"} for i in range(40)]
 
