@@ -155,9 +155,10 @@ def _flint_caldwell_raw(wavelength_nm: np.ndarray) -> np.ndarray:
 
 def _plant_growth(wavelength_nm: np.ndarray) -> np.ndarray:
     """Plant growth inhibition, Flint & Caldwell (2003) analytic fit, renormalised to 1 at
-    300 nm, applied up to 390 nm (the responses were measured to 366 nm; 390 nm is the
-    upper limit of the NSF Polar Programs UV Monitoring Network, TUV 5 uses 366 nm; the
-    choice changes weighted sunlight noticeably, see Micheletti et al. 2003)."""
+    300 nm, applied up to 390 nm. The responses were measured up to 366 nm and the paper
+    gives no long-wave end; where the function is cut (366 or 390 nm) changes weighted
+    sunlight and its ozone sensitivity a great deal, as Micheletti, Piacentini & Madronich
+    (2003) show for both limits: the limit is a choice, stated in the catalogue."""
     return _flint_caldwell_raw(wavelength_nm) / _flint_caldwell_raw(np.array(300.0))
 
 
@@ -287,9 +288,11 @@ _SPECTRA = (
         title="Plant growth inhibition (Flint & Caldwell)",
         source=("Flint S.D. & Caldwell M.M. (2003). A biological spectral weighting function "
                 "for ozone depletion research with higher plants. Physiologia Plantarum "
-                "117:137-144 (analytic fit of the appendix); upper limit 390 nm as in the "
-                "NSF Polar Programs UV Monitoring Network, cf. Micheletti M.I., Piacentini "
-                "R.D. & Madronich S. (2003), Photochemistry and Photobiology 78:456-461"),
+                "117:137-144 (analytic fit of the appendix; responses measured up to 366 nm, no "
+                "long-wave end given). Applied up to 390 nm; the effect of that limit against "
+                "366 nm: Micheletti M.I., Piacentini R.D. & Madronich S. (2003). Sensitivity of biologically active UV radiation to stratospheric "
+                "ozone changes: effects of action spectrum shape and wavelength range. "
+                "Photochemistry and Photobiology 78:456-461"),
         normalisation_nm=300.0,
         kind="analytic",
         description="Growth inhibition of higher plants in UV-B and UV-A; applied up to 390 nm.",

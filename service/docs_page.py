@@ -335,16 +335,19 @@ def _answer_types(operation: Operation) -> list[str]:
     return list((operation.spec.get("responses", {}).get("200") or {}).get("content", {}))
 
 
-def _select(ident: str, label: str, name: str, options: Sequence[str], selected: str | None = None) -> str:
-    choices = "".join(f'<option{" selected" if option == selected else ""}>{escape(option)}</option>'
-                      for option in options)
+def _accept_select(ident: str, label: str, options: Sequence[str]) -> str:
+    # No name: a form sent without scripts must not put it in the query.
+    choices = "".join(f'<option{" selected" if number == 0 else ""}>{escape(option)}</option>'
+                      for number, option in enumerate(options))
     return (f'<p class="control"><label for="{ident}">{escape(label)}</label>'
-            f'<select id="{ident}" name="{name}">{choices}</select></p>')
+            f'<select id="{ident}" data-accept>{choices}</select></p>')
 
 
 def _key_input(ident: str) -> str:
-    return (f'<p class="control"><label for="{ident}">API key (only where the deployment asks for one)</label>'
-            f'<input id="{ident}" name="api_key" type="password" autocomplete="off" spellcheck="false"></p>')
+    # No name either: a key must never travel in a URL.
+    return (f'<p class="control"><label for="{ident}">API key (only where the deployment asks for one; '
+            f'sent as X-API-Key by the script)</label>'
+            f'<input id="{ident}" data-api-key type="password" autocomplete="off" spellcheck="false"></p>')
 
 
 def _result_region(ident: str) -> str:
@@ -363,8 +366,8 @@ def _body_form(operation: Operation, number: int, name: str, summary: str, media
         f'<p class="control"><label for="{ident}-body">Request body ({escape(media_type)}; edit it freely)</label>'
         f'<textarea id="{ident}-body" name="body" rows="{min(24, text.count(chr(10)) + 2)}" '
         f'spellcheck="false">{escape(text)}</textarea></p>'
-        f'<input type="hidden" name="content_type" value="{escape(media_type)}">'
-        + _select(f"{ident}-accept", "Answer as (Accept)", "accept", answers, answers[0] if answers else None)
+        f'<input type="hidden" data-content-type value="{escape(media_type)}">'
+        + _accept_select(f"{ident}-accept", "Answer as (Accept)", answers)
         + _key_input(f"{ident}-key")
         + '<p class="control"><button type="submit" data-needs-script hidden>Send to this service</button>'
         '<span class="noscript-note">Sending from this page needs scripts; with scripts off, '
@@ -386,8 +389,8 @@ def _query_form(operation: Operation, number: int) -> str:
                       f'<input id="{ident}-{escape(pname)}" name="{escape(pname)}" value="{escape(str(value))}"'
                       f'{" required" if parameter.get("required") else ""}></p>')
     answers = _answer_types(operation)
-    accept = _select(f"{ident}-accept", "Answer as (Accept; sent by the script only)", "accept", answers,
-                     answers[0]) if len(answers) > 1 else ""
+    accept = _accept_select(f"{ident}-accept", "Answer as (Accept; sent by the script only)", answers) \
+        if len(answers) > 1 else ""
     return (
         f'<form class="try" id="{ident}" method="get" action="{escape(operation.path)}" '
         f'data-method="GET" data-path="{escape(operation.path)}">'

@@ -103,13 +103,14 @@ def _query_value(text: str, kind: str) -> Any:
         except ValueError:
             return text
         return value if math.isfinite(value) else text
-    return text if text != "" else None
+    return text
 
 
 def _read_query(place_schema, options_schema) -> tuple[dict[str, np.ndarray], Any, dict[str, Any]]:
     """(validated place columns (1,), its id, options) from the query string; a 422
     problem naming each bad or unknown parameter otherwise."""
-    query: Mapping[str, str] = request.args
+    # An empty parameter is not given (as an HTML form sends the fields left blank).
+    query: Mapping[str, str] = {name: value for name, value in request.args.items() if value != ""}
     kinds = {rule.wire: rule.kind for rule in column_rules(place_schema)}
     option_names = {field.data_key or name for name, field in options_schema.fields.items()}
     errors = [FieldError(field=name, reason="is not a parameter of this picture")

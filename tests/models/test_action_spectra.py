@@ -101,7 +101,7 @@ def test_plant_growth_flint_caldwell_form():
     spectrum = ACTION_SPECTRA["plant_growth"]
     values = spectrum.weights(np.arange(285.0, 390.5, 1.0))
     assert np.all(np.diff(values) < 0)
-    # Applied to 390 nm, zero beyond (NSF UV Monitoring Network convention).
+    # Applied to 390 nm, zero beyond (the limit examined by Micheletti, Piacentini & Madronich 2003).
     assert values[-1] > 0.0
     assert spectrum.weights(np.array([391.0, 400.0])).tolist() == [0.0, 0.0]
 

@@ -197,9 +197,10 @@ def stop(process: subprocess.Popen) -> None:
 
 
 @contextlib.contextmanager
-def running_gunicorn(tmp_path_factory, **settings: str):
-    """A real gunicorn (2 workers, multiprocess metrics) on a free loopback port, with
-    ``settings`` added to its environment; yields its base URL, stops it afterwards."""
+def running_gunicorn(tmp_path_factory, app: str = "uvdose.service.app:create_app()", **settings: str):
+    """A real gunicorn (2 workers, multiprocess metrics) on a free loopback port serving
+    ``app``, with ``settings`` added to its environment; yields its base URL, stops it
+    afterwards."""
     port = free_loopback_port()
     metrics_dir = tmp_path_factory.mktemp("prometheus")
     env = {**os.environ, "PROMETHEUS_MULTIPROC_DIR": str(metrics_dir), **settings}
@@ -208,7 +209,7 @@ def running_gunicorn(tmp_path_factory, **settings: str):
     log = (tmp_path_factory.mktemp("gunicorn") / "stderr.log").open("wb")
     process = subprocess.Popen(
         [sys.executable, "-m", "gunicorn", "--workers", "2", "--bind", f"127.0.0.1:{port}",
-         "--timeout", "60", "uvdose.service.app:create_app()"],
+         "--timeout", "60", app],
         cwd=REPO, env=env, stdout=subprocess.DEVNULL, stderr=log,
     )
     base_url = f"http://127.0.0.1:{port}"
