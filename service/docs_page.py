@@ -234,6 +234,7 @@ class Operation:
     path: str
     method: str
     spec: dict[str, Any]
+    parameters: list[dict[str, Any]]  # references resolved
 
     @property
     def id(self) -> str:
@@ -245,12 +246,19 @@ class Operation:
 
 
 def operations(spec: dict[str, Any]) -> list[Operation]:
-    return [Operation(path, method, item[method]) for path, item in spec.get("paths", {}).items()
-            for method in HTTP_METHODS if method in item]
+    shared = spec.get("components", {}).get("parameters", {})
+
+    def resolved(parameter: dict[str, Any]) -> dict[str, Any]:
+        if "$ref" in parameter:
+            return shared.get(parameter["$ref"].rsplit("/", 1)[-1], {})
+        return parameter
+
+    return [Operation(path, method, item[method], [resolved(p) for p in item[method].get("parameters") or []])
+            for path, item in spec.get("paths", {}).items() for method in HTTP_METHODS if method in item]
 
 
 def _parameters_html(walker: SchemaWalker, operation: Operation) -> str:
-    parameters = operation.spec.get("parameters") or []
+    parameters = operation.parameters
     if not parameters:
         return "<p>No parameters.</p>"
     rows = []
@@ -379,7 +387,7 @@ def _query_form(operation: Operation, number: int) -> str:
     """A GET form: its fields are the query parameters, so it works with scripts off too."""
     ident = f"try-{operation.id}-{number}"
     fields = []
-    for parameter in operation.spec.get("parameters") or []:
+    for parameter in operation.parameters:
         if parameter.get("in") != "query":
             continue
         pname = parameter["name"]
@@ -404,7 +412,7 @@ def _examples_html(base: str, operation: Operation) -> str:
     found = _examples(operation)
     out = ['<h4>Examples</h4>']
     if not found:
-        query = {p["name"]: p["example"] for p in operation.spec.get("parameters") or [] if "example" in p}
+        query = {p["name"]: p["example"] for p in operation.parameters if "example" in p}
         suffix = ("?" + urlencode(query)) if query else ""
         out.append(f'<pre class="curl"><code>{escape(_curl(base, operation, None, None, suffix))}</code></pre>')
         out.append(_query_form(operation, 0))
@@ -475,7 +483,7 @@ def _pictures_html(operations_: Sequence[Operation]) -> str:
     for operation in operations_:
         if "image/svg+xml" not in _answer_types(operation) or operation.method != "get":
             continue
-        query = {p["name"]: p["example"] for p in operation.spec.get("parameters") or [] if "example" in p}
+        query = {p["name"]: p["example"] for p in operation.parameters if "example" in p}
         url = operation.path + ("?" + urlencode(query) if query else "")
         alt = operation.spec.get("summary", "")
         figures.append(

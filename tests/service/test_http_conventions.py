@@ -28,6 +28,10 @@ BODIES = {
                          "last_day": "2026-04-02"},
     "/v1/doses/routes": {"routes": [ROUTE]},
 }
+QUERIES = {
+    "/v1/pictures/uv-index-day": {"lat": 44.05, "lon": 4.92, "date": "2026-06-21", "utc_offset": "+02:00"},
+    "/v1/pictures/field-season": {"lat": 44.05, "lon": 4.92, "first_day": "2026-04-01", "last_day": "2026-04-03"},
+}
 ASKED = ("application/json", "text/csv", "text/html", "application/yaml", "text/plain", "application/xml",
          "image/svg+xml")
 
@@ -43,7 +47,7 @@ def _offered(spec, path, method) -> set[str]:
 def _call(client, path, method, **headers):
     if method == "post":
         return client.post(path, json=BODIES[path], headers=headers)
-    return client.get(path, headers=headers)
+    return client.get(path, query_string=QUERIES.get(path), headers=headers)
 
 
 # --- Accept --------------------------------------------------------------------------------
