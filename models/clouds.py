@@ -14,16 +14,29 @@ Three ways to obtain a CMF, each vectorised over records:
 * given directly (0–1.5; values above 1 are legitimate broken-cloud enhancement);
 * from total cloud cover (fraction or oktas) by the power-law form of Kasten &
   Czeplak (1980), Solar Energy 24:177–189, CMF = 1 − 0.75 C^3.4, derived for global
-  solar radiation. Thiel et al. (1997), Photochem. Photobiol. 65:969–973, found no
-  statistically significant difference between the cloud attenuation of erythemally
-  weighted and of total global irradiance, which is why the broadband relation is
-  used for UV here. Josefsson & Landelius (2000) found UV attenuated somewhat less
-  than total radiation, so this tends to err low under heavy cloud;
+  solar radiation;
 * from a measured broadband global horizontal irradiance: the clear-sky index
   K = GHI_measured / GHI_clear, with GHI_clear from pvlib's simplified Solis model
-  (Ineichen 2008, Solar Energy 82:758–762), mapped to UV by CMF_UV = K^p. With the
-  default p = 1 this is Thiel et al.'s (1997) finding again; p < 1 expresses the
-  weaker UV attenuation other studies report, and clients can set it.
+  (Ineichen 2008, Solar Energy 82:758–762), mapped to UV by CMF_UV = K^p.
+
+Broadband to UV: the choice. Both broadband routes take the UV factor equal to the
+broadband one (p = 1). Thiel et al. (1997), Photochem. Photobiol. 65:969–973, compared
+erythemally weighted and total global irradiance under the same clouds and found no
+statistically significant difference in their attenuation. Josefsson & Landelius
+(2000, J. Geophys. Res. 105(D4):4927, from memory) found the cloud effect smaller in the
+UV than for global radiation, as do most of the studies reviewed by Calbó, Pagès &
+González (2005), "Empirical studies of cloud effects on UV radiation: A review", Rev.
+Geophys. 43, RG2002: UV is attenuated less (p below 1, roughly 0.6–0.9 there, from
+memory), mostly because thick cloud passes relatively more diffuse short-wave light.
+We keep p = 1: it is the one relation of these with a significance test on erythemal
+weighting, the difference it makes is well inside the spread of cover-based factors
+(Schwander et al. 2002, J. Geophys. Res. 107(D16), 4296: deviations of 50 % and more
+from cover alone, mostly below 15 % with a concurrent broadband measurement), and a
+client with a better relation can set ``exponent`` or send its own factor. If the
+majority of studies is right, the factor errs low (too little UV) under heavy cloud,
+so the uncertainty carries the ambiguity: ``models.uncertainty.cloud_relative_sigma``
+adds |ln CMF| × 0.2 (a 1-sigma spread of p of 0.2) to the measured spread of each
+route, 0.05 + 0.35 C for cover and 0.10 with a measured irradiance.
 """
 from __future__ import annotations
 
@@ -173,4 +186,29 @@ def resolve_cmf(cloud_modification_factor=None, cloud_cover_fraction=None,
     for name, values in given:
         cmf = converters[name](values)
         out = np.where(np.isnan(values), out, cmf)
+    return out
+
+
+def cloud_source(cloud_modification_factor=None, cloud_cover_fraction=None, cloud_cover_oktas=None,
+                 measured=None) -> np.ndarray:
+    """Where each record's cloud factor comes from (``models.uncertainty.CLOUD_SOURCES``).
+
+    Each argument (N,) with NaN = not given, or None: ``"factor"`` where a factor is given,
+    ``"cover"`` where a cover fraction or oktas are, ``"irradiance"`` where ``measured``
+    holds a factor derived from a measured broadband irradiance (NaN where none could be,
+    e.g. with the sun below 5°), ``"none"`` otherwise (clear sky).
+    """
+    given = [np.atleast_1d(np.asarray(v, dtype=float)) for v in
+             (cloud_modification_factor, cloud_cover_fraction, cloud_cover_oktas, measured) if v is not None]
+    n = given[0].shape if given else (1,)
+    out = np.full(n, "none", dtype=object)
+
+    def mark(values, label):
+        if values is not None:
+            out[~np.isnan(np.atleast_1d(np.asarray(values, dtype=float)))] = label
+
+    mark(measured, "irradiance")
+    mark(cloud_cover_fraction, "cover")
+    mark(cloud_cover_oktas, "cover")
+    mark(cloud_modification_factor, "factor")
     return out

@@ -27,12 +27,12 @@ the integration limits use the same algorithm at the model's own horizon (see
 """
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Callable, Mapping, Sequence
 
 import numpy as np
 
-from uvdose.models import engine
+from uvdose.models import engine, uncertainty
 from uvdose.models.record_errors import check_records
 from uvdose.models.solar_geometry import HORIZON_REFRACTION_DEG, sunrise_transit_sunset
 
@@ -147,6 +147,27 @@ def gauss_legendre_nodes(start_unix_s, end_unix_s, n: int) -> Nodes:
     return Nodes(times, window, weights, np.zeros(times.size, bool))
 
 
+def dose_relative_sigma(result: Columns, owner: np.ndarray, weight_s: np.ndarray, names: Sequence[str],
+                        n_windows: int) -> dict[str, dict[str, np.ndarray]]:
+    """Relative 1-sigma components {name: {component: (K,)}} of K window doses.
+
+    ``result`` the evaluator's columns at the samples (with ``relative_sigma.<name>.<component>``
+    columns, see ``models.engine.EngineResult``), ``owner`` (M,) each sample's window,
+    ``weight_s`` (M,) its quadrature weight. The samples' errors are combined as they
+    correlate (``models.uncertainty.dose_relative_sigma``). Empty when the evaluator
+    gives no uncertainty.
+    """
+    out = {}
+    for name in names:
+        keys = {c: engine.sigma_column(name, c) for c in uncertainty.COMPONENTS}
+        if not all(key in result for key in keys.values()):
+            continue
+        share = np.asarray(weight_s) * result.get(engine.effective_column(name), np.zeros(len(owner)))
+        out[name] = uncertainty.dose_relative_sigma(
+            owner, result["time_unix_s"], share, {c: result[key] for c, key in keys.items()}, n_windows)
+    return out
+
+
 def integrate(nodes: Nodes, per_window: Mapping[str, np.ndarray], n_windows: int,
               evaluate: Evaluator, skip: np.ndarray | None = None,
               per_node: Mapping[str, np.ndarray] | None = None,
@@ -157,7 +178,8 @@ def integrate(nodes: Nodes, per_window: Mapping[str, np.ndarray], n_windows: int
     are used as they are; ``skip`` (M,) marks nodes known to be zero (not evaluated).
     ``spectra`` names the doses to return (default: whatever the evaluator returns).
     Returns ``dose_j_m2`` {name: (K,)}, ``peak_uv_index`` (K,), ``final_rate_w_m2``
-    {name: (K,)} (the rate at each window's end node) and ``samples`` (evaluated nodes).
+    {name: (K,)} (the rate at each window's end node), ``relative_sigma`` {name:
+    {component: (K,)}} (:func:`dose_relative_sigma`) and ``samples`` (evaluated nodes).
     """
     use = np.ones(nodes.window.size, bool) if skip is None else ~skip
     columns = {k: np.asarray(v)[nodes.window[use]] for k, v in per_window.items()}
@@ -178,8 +200,10 @@ def integrate(nodes: Nodes, per_window: Mapping[str, np.ndarray], n_windows: int
     peak = np.zeros(n_windows)
     if "uv_index" in result and owner.size:
         np.maximum.at(peak, owner, result["uv_index"])
-    return {"dose_j_m2": doses, "peak_uv_index": peak, "final_rate_w_m2": final,
-            "samples": int(owner.size), "result": result, "owner": owner}
+    result.setdefault("time_unix_s", columns["time_unix_s"])
+    sigma = dose_relative_sigma(result, owner, weight, list(doses), n_windows)
+    return {"dose_j_m2": doses, "peak_uv_index": peak, "final_rate_w_m2": final, "relative_sigma": sigma,
+            "samples": int(owner.size), "result": result, "owner": owner, "weight_s": weight}
 
 
 def window_doses(per_window: Mapping[str, np.ndarray], start_unix_s, end_unix_s,
@@ -193,7 +217,7 @@ def window_doses(per_window: Mapping[str, np.ndarray], start_unix_s, end_unix_s,
     start = np.atleast_1d(np.asarray(start_unix_s, dtype=float))
     nodes = trapezoid_nodes(start, end_unix_s, step_s)
     out = integrate(nodes, per_window, start.size, evaluate, spectra=spectra)
-    out.pop("result"), out.pop("owner")
+    out.pop("result"), out.pop("owner"), out.pop("weight_s")
     return out
 
 
@@ -208,7 +232,9 @@ class FieldSeason:
     climatology and no cloud (CMF 1), ``ratio_to_clear_sky`` their quotient (NaN on
     days with a zero reference, e.g. polar night). ``sun_state`` as in
     ``models.solar_geometry.sunrise_transit_sunset``. ``samples`` counts evaluated
-    irradiance samples.
+    irradiance samples. ``daily_relative_sigma`` and ``season_relative_sigma`` map
+    spectrum name to {component: (F, D)} relative 1-sigma uncertainties of the daily
+    doses and of the running totals (``models.uncertainty``).
     """
 
     day_unix_s: np.ndarray
@@ -221,6 +247,8 @@ class FieldSeason:
     ratio_to_clear_sky: dict[str, np.ndarray]
     peak_uv_index: np.ndarray
     samples: int
+    daily_relative_sigma: dict[str, dict[str, np.ndarray]] = field(default_factory=dict)
+    season_relative_sigma: dict[str, dict[str, np.ndarray]] = field(default_factory=dict)
 
 
 def _climatological_ozone(latitude_deg, longitude_deg, time_unix_s):
@@ -230,7 +258,7 @@ def _climatological_ozone(latitude_deg, longitude_deg, time_unix_s):
 
 
 def field_season(per_field: Mapping[str, np.ndarray], day_unix_s, evaluate: Evaluator,
-                 ozone_du=None, cloud_modification_factor=None,
+                 ozone_du=None, cloud_modification_factor=None, cloud_source=None,
                  step_s: float = DEFAULT_DAY_STEP_S, reference_ozone=_climatological_ozone,
                  spectra: Sequence[str] | None = None, day_quadrature: str = "gauss_legendre",
                  gauss_nodes: int = DEFAULT_GAUSS_NODES) -> FieldSeason:
@@ -239,7 +267,9 @@ def field_season(per_field: Mapping[str, np.ndarray], day_unix_s, evaluate: Eval
     ``per_field``: Conditions columns (F,) (at least latitude_deg, longitude_deg).
     ``day_unix_s`` (D,): UTC midnights; day d is the daylight period around the solar
     transit that falls on that UTC date. ``ozone_du`` and ``cloud_modification_factor``
-    optional (F, D) per-day inputs, NaN = not given (resolver ozone, CMF 1).
+    optional (F, D) per-day inputs, NaN = not given (resolver ozone, CMF 1);
+    ``cloud_source`` (F, D) optionally says where each CMF came from
+    (``models.uncertainty.CLOUD_SOURCES``).
     Quadrature over each daylight period: Gauss–Legendre with ``gauss_nodes`` nodes
     (default) or the composite trapezoid at ``step_s``.
     All field-days go through the evaluator together, in bounded chunks.
@@ -285,6 +315,8 @@ def field_season(per_field: Mapping[str, np.ndarray], day_unix_s, evaluate: Eval
     per_window = {k: np.asarray(v)[fields_of] for k, v in per_field.items() if k != "time_unix_s"}
     per_window["ozone_du"] = ozone.ravel()
     per_window["cloud_modification_factor"] = cmf.ravel()
+    if cloud_source is not None:
+        per_window["cloud_source"] = np.asarray(cloud_source, dtype=object).reshape(-1)
     first = integrate(nodes, per_window, n_fields * n_days, evaluate, skip=skip, spectra=spectra)
     spectra = list(first["dose_j_m2"])
     daily = {k: v.reshape(shape) for k, v in first["dose_j_m2"].items()}
@@ -302,6 +334,7 @@ def field_season(per_field: Mapping[str, np.ndarray], day_unix_s, evaluate: Eval
     if again.any():
         second_window = dict(per_window)
         second_window["cloud_modification_factor"] = np.ones(n_fields * n_days)
+        second_window["cloud_source"] = np.full(n_fields * n_days, "factor", dtype=object)
         node_windows = nodes.window
         ref_ozone = reference_ozone(lat[fields_of][node_windows], lon[fields_of][node_windows],
                                     nodes.time_unix_s)
@@ -311,6 +344,10 @@ def field_season(per_field: Mapping[str, np.ndarray], day_unix_s, evaluate: Eval
             reference[k] = np.where(reusable, reference[k], v)
         first["samples"] += second["samples"]
     reference = {k: v.reshape(shape) for k, v in reference.items()}
+    daily_sigma = {name: {c: v.reshape(shape) for c, v in parts.items()}
+                   for name, parts in first["relative_sigma"].items()}
+    season_sigma = {name: uncertainty.running_total_relative_sigma(daily[name], parts)
+                    for name, parts in daily_sigma.items()}
     with np.errstate(divide="ignore", invalid="ignore"):
         ratio = {k: np.where(reference[k] > 0.0, daily[k] / reference[k], np.nan) for k in daily}
     return FieldSeason(
@@ -318,4 +355,5 @@ def field_season(per_field: Mapping[str, np.ndarray], day_unix_s, evaluate: Eval
         daily_dose_j_m2=daily,
         season_dose_j_m2={k: np.cumsum(v, axis=1) for k, v in daily.items()},
         clear_sky_reference_j_m2=reference, ratio_to_clear_sky=ratio,
-        peak_uv_index=first["peak_uv_index"].reshape(shape), samples=first["samples"])
+        peak_uv_index=first["peak_uv_index"].reshape(shape), samples=first["samples"],
+        daily_relative_sigma=daily_sigma, season_relative_sigma=season_sigma)

@@ -17,7 +17,7 @@ from typing import Mapping, Sequence
 
 import numpy as np
 
-from uvdose.models import MODEL_VERSION, action_spectra, clear_sky, optics, receivers, surfaces, uv_index
+from uvdose.models import MODEL_VERSION, action_spectra, clear_sky, optics, receivers, surfaces, uncertainty, uv_index
 from uvdose.models.ozone_grids import OzoneResolver
 from uvdose.models.solar_geometry import solar_position, surface_pressure_hpa
 from uvdose.models.spectral_grid import WAVELENGTH_NM
@@ -36,6 +36,17 @@ this prefix plus the action spectrum's name: :func:`effective_column`."""
 SPECTRUM_PREFIX = "spectrum_w_m2_nm."
 """Result columns of the spectral irradiance, W m⁻² nm⁻¹, are named this prefix plus the
 wavelength's index on ``WAVELENGTH_NM``: :func:`spectrum_column`."""
+
+
+SIGMA_PREFIX = "relative_sigma."
+"""Result columns of the relative 1-sigma uncertainty are named this prefix plus
+``<quantity>.<component>``: :func:`sigma_column`."""
+
+
+def sigma_column(quantity: str, component: str) -> str:
+    """Result-column name of ``component``'s relative 1-sigma of ``quantity`` ("uv_index" or
+    an action spectrum's name; components in ``models.uncertainty.COMPONENTS``)."""
+    return f"{SIGMA_PREFIX}{quantity}.{component}"
 
 
 def effective_column(spectrum_name: str) -> str:
@@ -98,6 +109,7 @@ class Conditions:
     receiver_azimuth_deg: np.ndarray
     sky_view_factor: np.ndarray
     surface_type: np.ndarray = field(default=None)
+    cloud_source: np.ndarray = field(default=None)
 
     @classmethod
     def from_columns(cls, columns: Mapping[str, np.ndarray]) -> "Conditions":
@@ -112,6 +124,10 @@ class Conditions:
         surface_type = columns.get("surface_type")
         values["surface_type"] = (
             np.full(n, "", dtype=object) if surface_type is None else np.asarray(surface_type, dtype=object)
+        )
+        cloud_source = columns.get("cloud_source")
+        values["cloud_source"] = (
+            np.full(n, "", dtype=object) if cloud_source is None else np.asarray(cloud_source, dtype=object)
         )
         for name, column in values.items():
             if column.shape != (n,):
@@ -130,6 +146,13 @@ class EngineResult:
     receiver, after clouds and any filter. ``uv_index`` is always for a horizontal,
     unfiltered surface under the record's clouds. ``spectrum_w_m2_nm`` is (N, W) on
     ``wavelength_nm`` when asked for, else ``None``.
+
+    ``relative_sigma`` maps ``"<quantity>.<component>"`` to the 1-sigma relative
+    uncertainty (N,) of ``uv_index`` and of each effective irradiance (quantity = the
+    spectrum name) from each source of ``models.uncertainty.COMPONENTS``; zero where
+    the quantity is zero. ``cloud_source`` says where the cloud factor came from
+    (``models.uncertainty.CLOUD_SOURCES``; ``"none"``: clear sky, an upper bound),
+    ``ozone_relative_sigma`` the relative 1-sigma of the ozone column used.
     """
 
     solar_zenith_deg: np.ndarray
@@ -145,9 +168,19 @@ class EngineResult:
     pressure_hpa: np.ndarray
     surface_albedo: np.ndarray
     cloud_modification_factor: np.ndarray
+    cloud_source: np.ndarray
+    ozone_relative_sigma: np.ndarray
+    relative_sigma: dict[str, np.ndarray]
     spectrum_w_m2_nm: np.ndarray | None = None
     wavelength_nm: np.ndarray = field(default_factory=lambda: WAVELENGTH_NM)
     model_version: str = MODEL_VERSION
+
+    _NESTED = ("effective_w_m2", "relative_sigma")
+
+    def components_of(self, quantity: str) -> dict[str, np.ndarray]:
+        """The relative 1-sigma components of ``quantity`` ("uv_index" or a spectrum name)."""
+        return {component: self.relative_sigma[f"{quantity}.{component}"]
+                for component in uncertainty.COMPONENTS}
 
     def as_columns(self) -> dict[str, np.ndarray]:
         """Flatten to a dict of (N,) arrays: effective values under :func:`effective_column`
@@ -155,9 +188,9 @@ class EngineResult:
         columns: dict[str, np.ndarray] = {}
         for f in fields(self):
             value = getattr(self, f.name)
-            if f.name == "effective_w_m2":
+            if f.name in self._NESTED:
                 for name, column in value.items():
-                    columns[effective_column(name)] = column
+                    columns[effective_column(name) if f.name == "effective_w_m2" else SIGMA_PREFIX + name] = column
             elif f.name == "spectrum_w_m2_nm":
                 if value is not None:
                     for index in range(value.shape[1]):
@@ -170,6 +203,7 @@ class EngineResult:
     def from_columns(cls, columns: Mapping[str, np.ndarray]) -> "EngineResult":
         """Inverse of :meth:`as_columns`."""
         effective = {name: columns[effective_column(name)] for name in effective_names(columns)}
+        sigma = {key[len(SIGMA_PREFIX):]: value for key, value in columns.items() if key.startswith(SIGMA_PREFIX)}
         spectrum_keys = sorted(
             (key for key in columns if key.startswith(SPECTRUM_PREFIX)),
             key=lambda key: int(key[len(SPECTRUM_PREFIX):]),
@@ -178,9 +212,9 @@ class EngineResult:
         plain = {
             f.name: columns[f.name]
             for f in fields(cls)
-            if f.name not in ("effective_w_m2", "spectrum_w_m2_nm", "wavelength_nm", "model_version")
+            if f.name not in (*cls._NESTED, "spectrum_w_m2_nm", "wavelength_nm", "model_version")
         }
-        return cls(effective_w_m2=effective, spectrum_w_m2_nm=spectrum, **plain)
+        return cls(effective_w_m2=effective, relative_sigma=sigma, spectrum_w_m2_nm=spectrum, **plain)
 
 
 @lru_cache(maxsize=16)
@@ -198,6 +232,37 @@ def _surface_albedo(conditions: Conditions) -> np.ndarray:
     if typed.any():
         albedo[typed] = surfaces.albedo_for(conditions.surface_type[typed])
     return _given(conditions.surface_albedo, albedo)
+
+
+def _cloud_source(conditions: Conditions) -> np.ndarray:
+    """Each record's cloud source: as given, else "factor" with a factor, "none" without."""
+    given = conditions.cloud_source.astype(str) != ""
+    inferred = np.where(np.isnan(conditions.cloud_modification_factor), "none", "factor").astype(object)
+    return np.where(given, conditions.cloud_source, inferred).astype(object)
+
+
+def _relative_sigma(c: Conditions, zenith_deg, ozone_du, ozone_sigma, aod_550, surface_albedo, cloud_source, cmf,
+                    transmittance, weights, names, requested, values) -> dict[str, np.ndarray]:
+    """Relative 1-sigma components of the UV Index and the requested effective irradiances
+    (``models.uncertainty``), keyed ``"<quantity>.<component>"``."""
+    columns = [0, *(names.index(name) for name in requested)]  # the UV Index's erythema first
+    chosen = weights[:, columns].copy()
+    if transmittance is not None:
+        # A filter weights the spectra it stands in front of (per-record curves by their mean).
+        curve = np.asarray(transmittance, dtype=float)
+        chosen[:, 1:] *= (curve if curve.ndim == 1 else curve.mean(axis=0))[:, None]
+    sensitivities = uncertainty.weighted_sensitivities(zenith_deg, ozone_du, chosen, surface_albedo)
+    typed = c.surface_type != ""
+    components = uncertainty.record_components(
+        sensitivities, ozone_sigma, aod_550, uncertainty.aerosol_log_sigma(c.aod_550),
+        surface_albedo, uncertainty.albedo_log_sigma(c.surface_albedo, surface_albedo, typed),
+        uncertainty.cloud_relative_sigma(cloud_source, cmf), zenith_deg)
+    out = {}
+    for index, quantity in enumerate(("uv_index", *requested)):
+        lit = np.asarray(values[quantity]) > 0.0
+        for component, sigma in components.items():
+            out[f"{quantity}.{component}"] = np.where(lit, sigma[:, index], 0.0)
+    return out
 
 
 def compute(
@@ -232,6 +297,7 @@ def compute(
     resolver = ozone_resolver if ozone_resolver is not None else OzoneResolver()
     ozone_du, ozone_source = resolver.resolve(c.latitude_deg, c.longitude_deg, c.time_unix_s, c.ozone_du)
     surface_albedo = _surface_albedo(c)
+    aod_550 = _given(c.aod_550, optics.DEFAULT_AOD_550)
 
     sky = clear_sky.spectral_irradiance(
         sun.zenith_deg,
@@ -239,7 +305,7 @@ def compute(
         ozone_du,
         pressure_hpa,
         surface_albedo,
-        _given(c.aod_550, optics.DEFAULT_AOD_550),
+        aod_550,
         _given(c.angstrom_exponent, optics.DEFAULT_ANGSTROM_EXPONENT),
         _given(c.single_scattering_albedo, optics.DEFAULT_SINGLE_SCATTERING_ALBEDO),
         _given(c.asymmetry_factor, optics.DEFAULT_ASYMMETRY_FACTOR),
@@ -276,6 +342,14 @@ def compute(
     effective = on_receiver @ weights
     by_name = {name: effective[:, index] for index, name in enumerate(names)}
     uvi = uv_index.uv_index(erythemal_horizontal)
+
+    cloud_source = _cloud_source(c)
+    ozone_sigma = resolver.relative_sigma(ozone_source, c.latitude_deg, c.longitude_deg, c.time_unix_s)
+    requested = list(dict.fromkeys(spectra))
+    relative_sigma = _relative_sigma(
+        c, sun.zenith_deg, ozone_du, ozone_sigma, aod_550, surface_albedo, cloud_source, cmf,
+        transmittance, weights, names, requested,
+        {"uv_index": uvi, **{name: by_name[name] for name in requested}})
     return EngineResult(
         solar_zenith_deg=sun.zenith_deg,
         solar_azimuth_deg=sun.azimuth_deg,
@@ -290,5 +364,8 @@ def compute(
         pressure_hpa=pressure_hpa,
         surface_albedo=surface_albedo,
         cloud_modification_factor=cmf,
+        cloud_source=cloud_source,
+        ozone_relative_sigma=ozone_sigma,
+        relative_sigma=relative_sigma,
         spectrum_w_m2_nm=on_receiver if include_spectrum else None,
     )

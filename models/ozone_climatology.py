@@ -53,6 +53,12 @@ CLIMATOLOGY_NAMES = tuple(CLIMATOLOGY_PATHS)
 DEFAULT_CLIMATOLOGY = "observed"
 """The climatology used when a caller names none."""
 
+YEAR_TO_YEAR_SIGMA_FRACTION = 0.03
+"""1-sigma relative year-to-year variation of a monthly mean about its climatology, and
+of today's ozone layer about the climatology's years: the quasi-biennial oscillation
+moves tropical columns by about ±3 %, monthly means at mid-latitudes vary by 2-4 % from
+year to year (from memory)."""
+
 DAYS_PER_CLIMATOLOGICAL_YEAR = 365.0
 """Period of the table's day-of-year axis. Day-of-year values are 1-based: day 1.0 is
 00:00 on 1 January; ``day_of_year_from_unix`` rescales leap years onto this period."""
@@ -232,14 +238,15 @@ def climatological_ozone_sigma_fraction(latitude_deg, longitude_deg, day_of_year
     """1-sigma relative deviation of a day's true column from climatology ``climatology``.
 
     For ``"observed"``: the day-to-day variability about the monthly mean stored with
-    the table (from memory of the literature; see its build script). For
-    ``"van_heuklon_1979"``: that variability combined in quadrature with the fit's
-    relative difference from the observed monthly means at the record (its bias).
-    Arguments as for :func:`climatological_ozone_du`.
+    the table (from memory of the literature; see its build script) combined in
+    quadrature with ``YEAR_TO_YEAR_SIGMA_FRACTION``. For ``"van_heuklon_1979"``: that,
+    combined in quadrature with the fit's relative difference from the observed
+    monthly means at the record (its bias). Arguments as for
+    :func:`climatological_ozone_du`.
     """
     position = _validated_position(latitude_deg, longitude_deg, day_of_year)
     observed = climatology_table("observed")
-    sigma = observed.interpolate_sigma(*position)
+    sigma = np.hypot(observed.interpolate_sigma(*position), YEAR_TO_YEAR_SIGMA_FRACTION)
     if check_climatology(climatology) == "observed":
         return sigma
     bias = climatology_table(climatology).interpolate(*position) / observed.interpolate(*position) - 1.0

@@ -46,7 +46,7 @@ import numpy as np
 
 from uvdose.models.grid_interpolation import GridAxis, TrilinearGrid
 from uvdose.models.ozone_climatology import (DEFAULT_CLIMATOLOGY, check_climatology, climatological_ozone_du,
-                                             day_of_year_from_unix)
+                                             climatological_ozone_sigma_fraction, day_of_year_from_unix)
 from uvdose.models.record_errors import check_records
 
 PLAUSIBLE_OZONE_DU = (50.0, 700.0)
@@ -59,6 +59,8 @@ CSV_COLUMNS = ("date", "latitude_deg", "longitude_deg", "ozone_du")
 SOURCE_CLIENT = "client"
 SOURCE_CLIMATOLOGY = "climatology"
 GRID_SOURCE_PREFIX = "grid:"
+
+_SECONDS_PER_DAY = 86400.0
 
 
 
@@ -457,3 +459,31 @@ class OzoneResolver:
                 lat[pending], lon[pending], day_of_year_from_unix(t[pending]), self.climatology
             )
         return ozone, labels
+
+    def relative_sigma(self, labels, latitude_deg, longitude_deg, time_unix_s) -> np.ndarray:
+        """1-sigma relative uncertainty of each record's column, by its source label.
+
+        ``labels`` as returned by :meth:`resolve`. A client value: ``CLIENT_OZONE_SIGMA``;
+        a daily grid: ``DAILY_GRID_OZONE_SIGMA``; a monthly grid and the climatology: the
+        day-to-day variability of the observed climatology at the record
+        (``models.ozone_climatology.climatological_ozone_sigma_fraction``; for the
+        1979 fit combined with its bias).
+        """
+        from uvdose.models.uncertainty import CLIENT_OZONE_SIGMA, DAILY_GRID_OZONE_SIGMA
+
+        labels = np.asarray(labels, dtype=object)
+        lat, lon, t = np.broadcast_arrays(*(np.atleast_1d(np.asarray(v, dtype=float))
+                                            for v in (latitude_deg, longitude_deg, time_unix_s)))
+        sigma = np.full(labels.shape, CLIENT_OZONE_SIGMA)
+        daily = {grid.label for grid in self.grids if grid.period_kind == "day"}
+        from_grid = np.isin(labels, list(daily)) if daily else np.zeros(labels.shape, bool)
+        sigma[from_grid] = DAILY_GRID_OZONE_SIGMA
+        by_climatology = ~from_grid & (labels != SOURCE_CLIENT)
+        if by_climatology.any():
+            monthly_grid = by_climatology & (labels != SOURCE_CLIMATOLOGY)
+            climatology = np.where(monthly_grid, "observed", self.climatology)
+            for name in np.unique(climatology[by_climatology]):
+                pick = by_climatology & (climatology == name)
+                sigma[pick] = climatological_ozone_sigma_fraction(
+                    lat[pick], lon[pick], day_of_year_from_unix(t[pick]), str(name))
+        return sigma

@@ -117,11 +117,13 @@ def _validate(points: RoutePoints) -> None:
 @dataclass
 class RouteDoses:
     """Per-route results, arrays (R,): doses {name: (R,)} on the driver-side receiver,
+    their relative 1-sigma components {name: {component: (R,)}} (``models.dose``),
     driving, parked and gap durations (s), and the number of evaluated samples."""
 
     dose_j_m2: dict[str, np.ndarray]
     final_rate_w_m2: dict[str, np.ndarray]
     peak_uv_index: np.ndarray
+    relative_sigma: dict[str, dict[str, np.ndarray]]
     driving_s: np.ndarray
     parked_s: np.ndarray
     gap_s: np.ndarray
@@ -216,6 +218,8 @@ def route_doses(points: RoutePoints, evaluate: dose.Evaluator,
     return RouteDoses(
         dose_j_m2={k: by_route(v) for k, v in out["dose_j_m2"].items()},
         final_rate_w_m2=final, peak_uv_index=peak,
+        relative_sigma=dose.dose_relative_sigma(out["result"], run_route[out["owner"]], out["weight_s"],
+                                                list(out["dose_j_m2"]), n_routes),
         driving_s=np.bincount(leg_route, weights=leg_s * driving, minlength=n_routes),
         parked_s=np.bincount(leg_route, weights=leg_s * parked, minlength=n_routes),
         gap_s=np.bincount(leg_route, weights=leg_s * lost, minlength=n_routes),

@@ -24,7 +24,7 @@ from flask import Flask, current_app
 
 from uvdose.models import clear_sky, dose
 from uvdose.models.ozone_grids import OzoneResolver
-from uvdose.service import cache
+from uvdose.service import cache, uncertainty_fields
 from uvdose.service.config import settings_from_environment
 
 OZONE_EXTENSION = "uvdose_ozone"
@@ -78,10 +78,19 @@ class Gateway:
         limit = self.max_full_solve_records
         return None if limit is None else clear_sky.FullSolveBudget(limit)
 
-    def _through_cache(self, columns: Columns, compute: Callable, context: str) -> dict[str, np.ndarray]:
+    @property
+    def caches(self) -> bool:
+        """Whether results come from cache cells (the engine run on each cell's centre)."""
+        return self.cache is not None and getattr(self.cache, "store", None) is not None
+
+    def _through_cache(self, columns: Columns, compute: Callable, context: str,
+                       quantities: Sequence[str] = ()) -> dict[str, np.ndarray]:
+        """``compute`` through the cache; with the cache cell's error added to the
+        uncertainty of ``quantities`` when results come from cells."""
         if self.cache is None:
             return compute(columns)
-        return self.cache.compute_through(columns, compute, context)
+        result = self.cache.compute_through(columns, compute, context)
+        return uncertainty_fields.with_cache_share(result, quantities) if self.caches else result
 
     def irradiance(self, columns: Columns, spectra: Sequence[str], include_spectrum: bool) -> dict[str, np.ndarray]:
         """``models.engine.compute`` on validated condition columns; result columns
@@ -97,7 +106,7 @@ class Gateway:
 
         context = (f"irradiance;spectra={','.join(spectra)};spectrum={int(include_spectrum)};"
                    f"ozone={self.ozone_fingerprint}")
-        return self._through_cache(columns, compute, context)
+        return self._through_cache(columns, compute, context, ("uv_index", *spectra))
 
     def dose_evaluator(self, spectra: Sequence[str], transmittance: np.ndarray | None, glazing: str,
                        kind: str) -> dose.Evaluator:
@@ -113,7 +122,7 @@ class Gateway:
             # Samples are built from validated input, so a ValueError inside the engine is
             # our fault, not the client's: keep it out of the 422 path of the endpoints.
             try:
-                return self._through_cache(columns, compute, context)
+                return self._through_cache(columns, compute, context, ("uv_index", *spectra))
             except ValueError as error:
                 raise RuntimeError(f"engine failed on dose samples: {error}") from error
 

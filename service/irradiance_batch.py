@@ -14,7 +14,7 @@ import numpy as np
 
 from uvdose.models import MODEL_VERSION, clouds
 from uvdose.models.engine import effective_column
-from uvdose.service import cautions
+from uvdose.service import cautions, uncertainty_fields
 from uvdose.service.engine_gateway import Gateway
 from uvdose.service.problems import by_schema, records_named
 from uvdose.service.record_fields import (
@@ -86,6 +86,7 @@ def with_cloud_factor_from_measurement(columns: Mapping[str, np.ndarray], ids: n
             columns.get("elevation_m", nan), columns.get("pressure_hpa", nan))
     given = columns.get("cloud_modification_factor", nan)
     columns["cloud_modification_factor"] = np.where(np.isnan(given), cmf, given)
+    columns["cloud_source"] = clouds.cloud_source(given, measured=cmf)
     return columns
 
 
@@ -102,6 +103,7 @@ def result_columns(result: Mapping[str, np.ndarray], ids: np.ndarray, spectra: l
     for wire, column in names:
         values = np.asarray(result[column])
         out[wire] = values.tolist() if values.dtype.kind in "OUS" else np.ascontiguousarray(values, np.float64)
+    out.update(uncertainty_fields.irradiance_columns(result, spectra))
     return out
 
 
@@ -121,7 +123,8 @@ def spectrum_matrix(result: Mapping[str, np.ndarray]) -> tuple[np.ndarray, np.nd
 def envelope(spectra: list[str], wavelength_nm: np.ndarray | None) -> dict[str, Any]:
     """The response members besides the results."""
     body: dict[str, Any] = {"model_version": MODEL_VERSION, "caution": cautions.CAUTION,
-                            "figure_cautions": cautions.figure_cautions(spectra), "spectra": spectra}
+                            "figure_cautions": cautions.figure_cautions(spectra), "spectra": spectra,
+                            "uncertainty_basis": uncertainty_fields.BASIS}
     if wavelength_nm is not None:
         body["wavelength_nm"] = wavelength_nm
     return body
@@ -141,6 +144,7 @@ def csv_columns(columns: Mapping[str, Any], wavelength_nm, spectrum, spectra: li
 def result_rows(columns: Mapping[str, Any], spectrum) -> list[dict[str, Any]]:
     """One dict per record, effective irradiance nested under ``effective_w_m2``."""
     columns = as_lists(columns)
+    columns["uncertainty"] = uncertainty_fields.nested_column(columns)
     if spectrum is not None:
         columns["spectrum_w_m2_nm"] = spectrum.tolist()
     return rows_from_columns(columns, nest="effective_w_m2")

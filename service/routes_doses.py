@@ -37,7 +37,7 @@ from marshmallow import fields, validate
 from uvdose.models import MODEL_VERSION, clouds, dose, exposure, filters, vehicle_routes
 from uvdose.models.record_errors import RecordError
 from uvdose.models.spectral_grid import WAVELENGTH_NM
-from uvdose.service import engine_gateway, metrics
+from uvdose.service import engine_gateway, metrics, uncertainty_fields
 from uvdose.service import cautions
 from uvdose.service.column_checks import check_columns
 from uvdose.service.negotiation import JSON_MEDIA_TYPE, produces
@@ -171,7 +171,12 @@ def _common(spectra, step_s, label, caution: str, results: list[dict[str, Any]])
     figures = set(spectra).union(*(result.keys() for result in results))
     return {"model_version": MODEL_VERSION, "caution": caution,
             "figure_cautions": cautions.figure_cautions(figures), "spectra": list(spectra),
-            "step_s": step_s, "glazing": label}
+            "step_s": step_s, "glazing": label, "uncertainty_basis": uncertainty_fields.BASIS}
+
+
+def _uncertainty_objects(sigma, count: int, clouds=None) -> list[dict[str, Any]]:
+    """One ``uncertainty`` object per dose result (``service.uncertainty_fields``)."""
+    return [uncertainty_fields.dose_object(sigma, i, None if clouds is None else clouds[i]) for i in range(count)]
 
 
 def _longer_than_limit_period(duration_s: np.ndarray) -> list[bool]:
@@ -224,7 +229,10 @@ def windows() -> Response:
                                   "at most 31 days", index=int(i),
                                   id=_record_id(batch.ids, i))
                        for i in np.flatnonzero(bad)])
+    source = clouds.cloud_source(cols.get("cloud_modification_factor"), cols.get("cloud_cover_fraction"),
+                                 cols.get("cloud_cover_oktas"))
     cols["cloud_modification_factor"] = np.broadcast_to(_cmf_columns(cols, batch.ids), start.shape).copy()
+    cols["cloud_source"] = np.broadcast_to(source, start.shape).copy()
     cols.pop("cloud_cover_fraction", None), cols.pop("cloud_cover_oktas", None)
     spectra = list(options.get("spectra") or DEFAULT_WINDOW_SPECTRA)
     step_s = float(options.get("step_s") or dose.DEFAULT_WINDOW_STEP_S)
@@ -239,6 +247,7 @@ def windows() -> Response:
         "dose_j_m2": rows_from_columns({k: np.asarray(v).tolist() for k, v in doses.items()}),
         "peak_uv_index": np.asarray(out["peak_uv_index"]).tolist(),
         "cloud_factor": [None if np.isnan(x) else x for x in cols["cloud_modification_factor"].tolist()],
+        "uncertainty": _uncertainty_objects(out["relative_sigma"], len(batch), cols["cloud_source"].tolist()),
     }
     columns.update(_exposure_rows(doses, out["final_rate_w_m2"]))
     if "icnirp_limit_fraction" in columns:
@@ -310,17 +319,18 @@ def _daily_entry_names(error: RecordError) -> FieldError:
 
 
 def _daily_inputs(daily: Any, n_fields: int, first: np.datetime64, n_days: int):
-    """(ozone (F, D), CMF (F, D)) from the optional daily table."""
+    """(ozone (F, D), CMF (F, D), cloud source (F, D)) from the optional daily table."""
     ozone = np.full((n_fields, n_days), np.nan)
     cmf = np.full((n_fields, n_days), np.nan)
+    source = np.full((n_fields, n_days), "none", dtype=object)
     if daily is None:
-        return ozone, cmf
+        return ozone, cmf, source
     entries, errors = _daily_table(daily, n_fields, n_days)
     if errors:
         raise invalid_records(errors, 0)
     n = len(entries)
     if not n:
-        return ozone, cmf
+        return ozone, cmf, source
     columns = entries.columns
     field_index = columns["field_index"].astype(np.int64)
     day_index = (columns["day_unix_s"] // _SECONDS_PER_DAY).astype(np.int64) - first.astype(np.int64)
@@ -344,7 +354,9 @@ def _daily_inputs(daily: Any, n_fields: int, first: np.datetime64, n_days: int):
         day_cmf = clouds.resolve_cmf(column("cloud_modification_factor"), None, column("cloud_cover_oktas"))
     ozone[field_index, day_index] = column("ozone_du")
     cmf[field_index, day_index] = np.broadcast_to(day_cmf, (n,))
-    return ozone, cmf
+    source[field_index, day_index] = clouds.cloud_source(column("cloud_modification_factor"), None,
+                                                         column("cloud_cover_oktas"))
+    return ozone, cmf, source
 
 
 @blueprint.post(FIELDS_ROUTE)
@@ -359,7 +371,7 @@ def field_doses() -> Response:
     if first < np.datetime64("1950-01-01") or last >= np.datetime64("2101-01-01"):
         raise _options_problem("first_day", "the season must lie within 1950–2100")
     days = (first + np.arange(n_days)).astype("datetime64[s]").astype(np.int64).astype(float)
-    ozone, cmf = _daily_inputs(options.get("daily"), len(batch), first, n_days)
+    ozone, cmf, cloud_source = _daily_inputs(options.get("daily"), len(batch), first, n_days)
     spectra = list(options.get("spectra") or DEFAULT_FIELD_SPECTRA)
     # Gauss–Legendre over each daylight period unless the client asks for a step.
     step_s = options.get("step_s")
@@ -370,7 +382,7 @@ def field_doses() -> Response:
     evaluate = gateway.dose_evaluator(spectra, transmittance, label, "fields")
     # Every input was validated above: an error from here on is the service's, not the client's.
     season = dose.field_season(batch.columns, days, evaluate, ozone_du=ozone,
-                               cloud_modification_factor=cmf, spectra=spectra,
+                               cloud_modification_factor=cmf, cloud_source=cloud_source, spectra=spectra,
                                reference_ozone=gateway.reference_ozone, **quadrature)
     metrics.count_records(FIELDS_ROUTE, len(batch))
 
@@ -384,6 +396,7 @@ def field_doses() -> Response:
     sunset = [iso_utc(row) for row in season.sunset_unix_s]
     states = state_names[season.sun_state + 1].tolist()
     peak = season.peak_uv_index.tolist()
+    sources = cloud_source.tolist()
     for f, record_id in enumerate(batch.ids.tolist()):
         day_rows = rows_from_columns({
             "day": dates, "sunrise": sunrise[f], "sunset": sunset[f], "sun": states[f],
@@ -391,6 +404,10 @@ def field_doses() -> Response:
             "season_total_j_m2": rows_from_columns({k: v[f] for k, v in season_lists.items()}),
             "ratio_to_clear_sky": rows_from_columns({k: v[f] for k, v in ratio_lists.items()}),
             "peak_uv_index": peak[f],
+            "uncertainty": [uncertainty_fields.dose_object(season.daily_relative_sigma, (f, d), sources[f][d])
+                            for d in range(n_days)],
+            "season_total_uncertainty": [uncertainty_fields.dose_object(season.season_relative_sigma, (f, d))
+                                         for d in range(n_days)],
         })
         results.append({"id": record_id, "days": day_rows})
     body = _common(spectra, step_s, label, cautions.FIELD_CAUTION, [])
@@ -628,6 +645,7 @@ def route_doses() -> Response:
         "driving_s": out.driving_s.tolist(), "parked_s": out.parked_s.tolist(), "gap_s": out.gap_s.tolist(),
         "dose_j_m2": rows_from_columns({k: v.tolist() for k, v in out.dose_j_m2.items()}),
         "peak_uv_index": out.peak_uv_index.tolist(),
+        "uncertainty": _uncertainty_objects(out.relative_sigma, len(ids)),
     }
     columns.update(_exposure_rows(out.dose_j_m2, out.final_rate_w_m2))
     if "icnirp_limit_fraction" in columns:

@@ -321,3 +321,27 @@ def test_resolver_climatology_by_name_and_its_fingerprint():
     assert default.fingerprint == "none" and fit.fingerprint == "none;climatology=van_heuklon_1979"
     with pytest.raises(ValueError, match="unknown ozone climatology"):
         OzoneResolver(climatology="satellite")
+
+
+def test_relative_sigma_by_source(tmp_path):
+    from uvdose.models.ozone_climatology import climatological_ozone_sigma_fraction
+    from uvdose.models.uncertainty import CLIENT_OZONE_SIGMA, DAILY_GRID_OZONE_SIGMA
+
+    daily = OzoneGrid.from_csv(_write_csv(tmp_path / "daily.csv", DATES, LATS, LONS, _values()))
+    monthly = OzoneGrid.from_csv(_write_csv(tmp_path / "monthly.csv", ["2026-05", "2026-06"], [0.0, 10.0],
+                                            [0.0, 10.0], np.full((2, 2, 2), 260.0)))
+    assert daily.period_kind == "day" and monthly.period_kind == "month"
+    resolver = OzoneResolver([daily, monthly])
+    lat = np.array([42.5, 42.5, 5.0, -60.0])
+    lon = np.array([0.0, 0.0, 5.0, 0.0])
+    t = np.array([_unix("2026-03-02T12:00:00"), _unix("2026-03-02T12:00:00"), _unix("2026-06-01T00:00:00"),
+                  _unix("2026-06-01T00:00:00")])
+    ozone, labels = resolver.resolve(lat, lon, t, [300.0, np.nan, np.nan, np.nan])
+    assert labels.tolist() == ["client", "grid:daily.csv", "grid:monthly.csv", "climatology"]
+    sigma = resolver.relative_sigma(labels, lat, lon, t)
+    # a monthly mean is no better than the climatology's day-to-day spread
+    expected = climatological_ozone_sigma_fraction(lat[2:], lon[2:], day_of_year_from_unix(t[2:]))
+    assert sigma.tolist()[:2] == [CLIENT_OZONE_SIGMA, DAILY_GRID_OZONE_SIGMA]
+    assert sigma[2:] == pytest.approx(expected)
+    fit = resolver.with_climatology("van_heuklon_1979").relative_sigma(labels, lat, lon, t)
+    assert fit[2] == pytest.approx(sigma[2]) and fit[3] > sigma[3]  # the fit's bias added
