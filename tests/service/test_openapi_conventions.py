@@ -288,8 +288,20 @@ def test_the_columns_answer_names_every_spectrum(spec):
 
     columns = spec["components"]["schemas"]["IrradianceResultColumns"]["properties"]
     assert {name.split(".", 1)[1] for name in columns if name.startswith("effective_w_m2.")} == set(ACTION_SPECTRA)
-    rows = spec["components"]["schemas"]["IrradianceResult"]["properties"]
-    assert set(columns) == (set(rows) - {"effective_w_m2"}) | {f"effective_w_m2.{name}" for name in ACTION_SPECTRA}
+    schemas = spec["components"]["schemas"]
+    rows = schemas["IrradianceResult"]["properties"]
+    # The rows' nested uncertainty object is flattened in the columns answer, like effective_w_m2.
+    flat_uncertainty = set()
+    for member in schemas["IrradianceUncertainty"]["properties"]:
+        if member == "effective_w_m2":
+            flat_uncertainty |= {f"uncertainty.effective_w_m2.{name}" for name in ACTION_SPECTRA}
+        elif member == "components":
+            flat_uncertainty |= {f"uncertainty.components.{part}"
+                                 for part in schemas["UncertaintyComponents"]["properties"]}
+        else:
+            flat_uncertainty.add(f"uncertainty.{member}")
+    assert set(columns) == ((set(rows) - {"effective_w_m2", "uncertainty"})
+                            | {f"effective_w_m2.{name}" for name in ACTION_SPECTRA} | flat_uncertainty)
 
 
 def test_the_catalogue_limits_are_documented(spec, client):
