@@ -18,7 +18,7 @@ PREFIX = "uncertainty."
 
 BASIS = ("1-sigma relative uncertainty (fractional standard deviation) of each value; about "
          "nine true values in ten lie within value x exp(+-1.645 sigma). With no cloud input "
-         "(clouds 'none') the value is the clear-sky one: an upper bound, apart from minutes "
+         "(cloud_source 'none') the value is the clear-sky one: an upper bound, apart from minutes "
          "of broken-cloud enhancement, whose clouds part is not included.")
 """The ``uncertainty_basis`` member of every irradiance and dose response."""
 
@@ -52,7 +52,7 @@ def irradiance_columns(result: Mapping[str, np.ndarray], spectra: Sequence[str])
     for component, values in uvi.items():
         out[f"{PREFIX}components.{component}"] = values
     out[f"{PREFIX}ozone_relative"] = np.asarray(result["ozone_relative_sigma"], dtype=float)
-    out[f"{PREFIX}clouds"] = np.asarray(result["cloud_source"]).tolist()
+    out[f"{PREFIX}cloud_source"] = np.asarray(result["cloud_source"]).tolist()
     return out
 
 
@@ -78,15 +78,16 @@ def nested_column(columns: dict[str, Any]) -> list[dict[str, Any]]:
     return rows_from_columns(order)
 
 
-def dose_object(sigma: Mapping[str, Mapping[str, np.ndarray]], index, clouds: str | None = None) -> dict[str, Any]:
-    """The ``uncertainty`` object of one dose result: per spectrum the total and the
-    components, at ``index`` of the (K,) or (F, D) arrays of ``models.dose``."""
-    totals, parts = {}, {}
-    for name, components in sigma.items():
-        values = {c: float(np.asarray(v)[index]) for c, v in components.items()}
-        totals[name] = float(np.sqrt(sum(v * v for v in values.values())))
-        parts[name] = values
-    out: dict[str, Any] = {"dose_j_m2": totals, "components": parts}
-    if clouds is not None:
-        out["clouds"] = clouds
+def dose_object(sigma: Mapping[str, Mapping[str, np.ndarray]], index, cloud_source: str | None = None) -> dict[str, Any]:
+    """The ``uncertainty`` object of one dose result, at ``index`` of the (K,) or (F, D)
+    arrays of ``models.dose``: ``dose_j_m2`` the total per spectrum, then per component a
+    map spectrum -> relative sigma, and where known the ``cloud_source``."""
+    parts = {name: {c: float(np.asarray(v)[index]) for c, v in components.items()}
+             for name, components in sigma.items()}
+    out: dict[str, Any] = {"dose_j_m2": {name: float(np.sqrt(sum(v * v for v in values.values())))
+                                         for name, values in parts.items()}}
+    for component in uncertainty.COMPONENTS:
+        out[component] = {name: values[component] for name, values in parts.items()}
+    if cloud_source is not None:
+        out["cloud_source"] = cloud_source
     return out

@@ -35,7 +35,7 @@ def test_csv_in_csv_out_has_one_line_per_record_and_the_documented_header(client
         "uncertainty.uv_index", "uncertainty.effective_w_m2.erythema", "uncertainty.effective_w_m2.actinic_icnirp",
         "uncertainty.components.ozone", "uncertainty.components.aerosol", "uncertainty.components.clouds",
         "uncertainty.components.surface_albedo", "uncertainty.components.model", "uncertainty.components.cache",
-        "uncertainty.ozone_relative", "uncertainty.clouds", "caution"]
+        "uncertainty.ozone_relative", "uncertainty.cloud_source", "caution"]
     assert [float(row["cloud_factor"]) for row in rows] == [1.0, 0.7, 1.2]  # empty cell = default 1
     assert float(rows[2]["surface_albedo"]) == pytest.approx(0.1)
 

@@ -34,7 +34,7 @@ def test_every_daytime_answer_carries_a_positive_finite_uncertainty_and_night_ze
     day, night = (r["uncertainty"] for r in body["results"])
     assert 0.0 < day["uv_index"] < 1.0 and all(0.0 < v < 1.0 for v in day["effective_w_m2"].values())
     assert day["uv_index"] == pytest.approx(np.sqrt(sum(v * v for v in day["components"].values())))
-    assert day["clouds"] == "none" and day["components"]["clouds"] == 0.0 and day["components"]["cache"] == 0.0
+    assert day["cloud_source"] == "none" and day["components"]["clouds"] == 0.0 and day["components"]["cache"] == 0.0
     assert day["ozone_relative"] > uncertainty.CLIENT_OZONE_SIGMA
     assert night["uv_index"] == 0.0 and set(night["effective_w_m2"].values()) == {0.0}
 
@@ -43,12 +43,12 @@ def test_it_shrinks_with_what_the_client_sends_and_names_the_cloud_source(exact)
     default = _rows(exact, [ORCHARD])["results"][0]["uncertainty"]
     given = _rows(exact, [{**ORCHARD, "ozone_du": 330, "aod_550": 0.12, "surface_albedo": 0.03,
                            "cloud_factor": 0.9}])["results"][0]["uncertainty"]
-    assert given["clouds"] == "factor" and given["ozone_relative"] == uncertainty.CLIENT_OZONE_SIGMA
+    assert given["cloud_source"] == "factor" and given["ozone_relative"] == uncertainty.CLIENT_OZONE_SIGMA
     for component in ("ozone", "aerosol", "surface_albedo"):
         assert given["components"][component] < default["components"][component]
     assert given["uv_index"] < default["uv_index"]
     measured = _rows(exact, [{**ORCHARD, "measured_ghi_w_m2": 500}])["results"][0]
-    assert measured["uncertainty"]["clouds"] == "irradiance"
+    assert measured["uncertainty"]["cloud_source"] == "irradiance"
     assert measured["uncertainty"]["components"]["clouds"] >= uncertainty.IRRADIANCE_CMF_SIGMA
 
 
@@ -69,7 +69,7 @@ def test_columns_and_csv_carry_the_same_figures(exact):
                       content_type="text/csv", headers={"Accept": "text/csv"}).get_data(as_text=True)
     line = next(csv.DictReader(io.StringIO(text)))
     assert float(line["uncertainty.effective_w_m2.plant_damage"]) == pytest.approx(rows["effective_w_m2"]["plant_damage"])
-    assert line["uncertainty.clouds"] == "none"
+    assert line["uncertainty.cloud_source"] == "none"
 
 
 def _post(client, path, body):
@@ -83,9 +83,9 @@ def test_window_doses_cover_costs_more_than_a_factor(client):
     body = _post(client, "/v1/doses/windows", {"records": [{**window, "cloud_cover": 0.75},
                                                            {**window, "cloud_factor": 0.6}, window]})
     by_cover, by_factor, clear = (r["uncertainty"] for r in body["results"])
-    assert (by_cover["clouds"], by_factor["clouds"], clear["clouds"]) == ("cover", "factor", "none")
-    assert by_cover["components"]["erythema"]["clouds"] > by_factor["components"]["erythema"]["clouds"] > 0.0
-    assert clear["components"]["erythema"]["clouds"] == 0.0
+    assert (by_cover["cloud_source"], by_factor["cloud_source"], clear["cloud_source"]) == ("cover", "factor", "none")
+    assert by_cover["clouds"]["erythema"] > by_factor["clouds"]["erythema"] > 0.0
+    assert clear["clouds"]["erythema"] == 0.0
     assert by_cover["dose_j_m2"]["erythema"] > by_factor["dose_j_m2"]["erythema"] > 0.0
 
 
@@ -95,9 +95,9 @@ def test_field_days_and_season_totals(client):
         "first_day": "2026-05-01", "last_day": "2026-05-07", "spectra": ["erythema"],
         "daily": {"field": [0], "day": ["2026-05-02"], "cloud_oktas": [6]}})
     days = body["results"][0]["days"]
-    assert days[1]["uncertainty"]["clouds"] == "cover" and days[0]["uncertainty"]["clouds"] == "none"
-    daily_ozone = [d["uncertainty"]["components"]["erythema"]["ozone"] for d in days]
-    season_ozone = [d["season_total_uncertainty"]["components"]["erythema"]["ozone"] for d in days]
+    assert days[1]["uncertainty"]["cloud_source"] == "cover" and days[0]["uncertainty"]["cloud_source"] == "none"
+    daily_ozone = [d["uncertainty"]["ozone"]["erythema"] for d in days]
+    season_ozone = [d["season_total_uncertainty"]["ozone"]["erythema"] for d in days]
     assert season_ozone[0] == pytest.approx(daily_ozone[0]) and season_ozone[-1] < 0.6 * np.mean(daily_ozone)
 
 
