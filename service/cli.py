@@ -1,10 +1,11 @@
 """The ``uvdose`` command.
 
 ``uvdose serve``
-    Run the service under gunicorn: with ``deploy/gunicorn.conf.py`` when the source tree
-    has it (the container's configuration), else with the same server settings read here
-    (``UVDOSE_BIND``, ``UVDOSE_WORKERS``, …; pooled Prometheus metrics). Everything comes
-    from the environment (README, "Configuration"; parsed by ``service/config.py``).
+    Run the service under gunicorn with the settings the container uses
+    (:mod:`service.server`: ``UVDOSE_BIND``, ``UVDOSE_WORKERS``, …, JSON logs, pooled
+    Prometheus metrics), from any directory and any install; ``--config`` runs a gunicorn
+    config file of your own instead. Everything comes from the environment (README,
+    "Configuration"; parsed by ``service/config.py``).
 ``uvdose batch IN OUT``
     Run a CSV or JSON batch file through the same schemas and engine offline, in chunks,
     with a progress bar on stderr. The format of each file follows its extension
@@ -14,91 +15,13 @@
 from __future__ import annotations
 
 import argparse
-import os
-import runpy
-import shutil
 import sys
-import tempfile
 from pathlib import Path
-from typing import Any, Sequence
+from typing import Sequence
 
-_DEPLOY_CONFIG = Path(__file__).resolve().parent.parent / "deploy" / "gunicorn.conf.py"
+from uvdose.service.server import serve
 
 EXIT_INVALID = 2
-
-
-# ---------------------------------------------------------------------------------------
-# serve
-
-
-def _default_server_settings(own_metrics_dir: str | None) -> dict[str, Any]:
-    """gunicorn settings without a config file: the same variables as
-    ``deploy/gunicorn.conf.py`` (``config.SERVER_SETTINGS``), the same defaults."""
-    from uvdose.service.config import ConfigurationError, server_settings_from_environment
-
-    try:
-        settings = server_settings_from_environment()
-    except ConfigurationError as error:
-        raise SystemExit(str(error)) from None
-
-    def child_exit(server, worker):
-        from prometheus_client import multiprocess
-
-        multiprocess.mark_process_dead(worker.pid)
-
-    def on_exit(server):
-        if own_metrics_dir:
-            shutil.rmtree(own_metrics_dir, ignore_errors=True)
-
-    return {
-        "bind": [settings["UVDOSE_BIND"]],
-        "workers": settings["UVDOSE_WORKERS"],
-        "worker_class": "gthread",
-        "threads": settings["UVDOSE_THREADS"],
-        "timeout": settings["UVDOSE_WORKER_TIMEOUT"],
-        "graceful_timeout": settings["UVDOSE_GRACEFUL_TIMEOUT"],
-        "keepalive": settings["UVDOSE_KEEPALIVE"],
-        "max_requests": settings["UVDOSE_MAX_REQUESTS"],
-        "max_requests_jitter": settings["UVDOSE_MAX_REQUESTS"] // 10,
-        "preload_app": settings["UVDOSE_PRELOAD"],
-        "loglevel": settings["UVDOSE_LOG_LEVEL"].lower(),
-        "accesslog": None,
-        "child_exit": child_exit,
-        "on_exit": on_exit,
-    }
-
-
-def serve(bind: str | None, workers: int | None, config_path: Path | None) -> None:
-    """Run gunicorn in this process until it is told to stop."""
-    from gunicorn.app.base import BaseApplication
-
-    own_metrics_dir = None
-    if config_path is None and not os.environ.get("PROMETHEUS_MULTIPROC_DIR"):
-        # Must be set before prometheus_client is first imported (by the app, below).
-        own_metrics_dir = tempfile.mkdtemp(prefix="uvdose-serve-metrics-")
-        os.environ["PROMETHEUS_MULTIPROC_DIR"] = own_metrics_dir
-
-    class Server(BaseApplication):
-        def load_config(self) -> None:
-            if config_path is not None:
-                # As gunicorn's own -c does: run the file, keep the names that are settings.
-                for key, value in runpy.run_path(str(config_path)).items():
-                    if key in self.cfg.settings and value is not None:
-                        self.cfg.set(key, value)
-            else:
-                for key, value in _default_server_settings(own_metrics_dir).items():
-                    self.cfg.set(key, value)
-            if bind:
-                self.cfg.set("bind", [bind])
-            if workers:
-                self.cfg.set("workers", workers)
-
-        def load(self):
-            from uvdose.service.app import create_app
-
-            return create_app()
-
-    Server().run()
 
 
 # ---------------------------------------------------------------------------------------
@@ -208,8 +131,8 @@ def _parser() -> argparse.ArgumentParser:
     serve_parser = commands.add_parser("serve", help="run the HTTP service under gunicorn")
     serve_parser.add_argument("--bind", help="host:port to listen on (default 127.0.0.1:8080 or UVDOSE_BIND)")
     serve_parser.add_argument("--workers", type=int, help="worker processes")
-    serve_parser.add_argument("--config", type=Path, help="gunicorn config file (default deploy/gunicorn.conf.py "
-                              "when present)")
+    serve_parser.add_argument("--config", type=Path, help="a gunicorn config file of your own (default: the "
+                              "container's settings, from the environment)")
 
     batch = commands.add_parser("batch", help="compute a CSV or JSON batch file offline")
     batch.add_argument("input", help="records file (.csv or .json; - for stdin)")
@@ -227,8 +150,7 @@ def _parser() -> argparse.ArgumentParser:
 def main(argv: Sequence[str] | None = None) -> int:
     args = _parser().parse_args(argv)
     if args.command == "serve":
-        config = args.config or (_DEPLOY_CONFIG if _DEPLOY_CONFIG.is_file() else None)
-        serve(args.bind, args.workers, config)
+        serve(args.bind, args.workers, args.config)
         return 0
     if args.chunk_size <= 0:
         sys.stderr.write("uvdose batch: --chunk-size must be positive\n")

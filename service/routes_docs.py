@@ -12,39 +12,15 @@ from functools import lru_cache
 from pathlib import Path
 from typing import Any
 
-import yaml
-from flask import Blueprint, Flask, Response, current_app
+from flask import Blueprint, Response
 
 from uvdose.service import cautions, problems
 from uvdose.service import docs_page as docs_page_html
 from uvdose.service.caching_headers import cacheable
+from uvdose.service.contract import load_document, openapi_document, openapi_path
 from uvdose.service.negotiation import HTML_MEDIA_TYPE, YAML_MEDIA_TYPE, produces
 
 blueprint = Blueprint("docs", __name__)
-
-def openapi_path(app: Flask | None = None) -> Path:
-    """Where the OpenAPI document is: the configured path, the packaged copy, or the repo's."""
-    app = app or current_app
-    configured = app.config.get("UVDOSE_OPENAPI_PATH")
-    if configured:
-        return Path(configured)
-    here = Path(__file__).resolve().parent
-    for candidate in (here / "openapi.yaml", here.parent / "openapi.yaml"):
-        if candidate.is_file():
-            return candidate
-    raise FileNotFoundError("openapi.yaml is neither packaged with the service nor beside it")
-
-
-@lru_cache(maxsize=4)
-def _load(path: str, mtime_ns: int) -> tuple[str, dict[str, Any]]:
-    text = Path(path).read_text(encoding="utf-8")
-    return text, yaml.safe_load(text)
-
-
-def openapi_document(app: Flask | None = None) -> tuple[str, dict[str, Any]]:
-    """The OpenAPI document as text and as parsed data (reloaded when the file changes)."""
-    path = openapi_path(app)
-    return _load(str(path), path.stat().st_mtime_ns)
 
 
 @blueprint.get("/openapi.yaml")
@@ -72,7 +48,7 @@ def docs_page() -> Response:
 @lru_cache(maxsize=4)
 def _rendered(path: str, mtime_ns: int) -> str:
     """The page for one version of the document (rendered once, not per request)."""
-    _, spec = _load(path, mtime_ns)
+    _, spec = load_document(path, mtime_ns)
     return render_html(spec)
 
 

@@ -96,9 +96,9 @@ def test_progress_bar_goes_to_stderr_for_multi_chunk_files(tmp_path):
 
 @pytest.mark.gunicorn
 @pytest.mark.parametrize("command", [
-    ["-m", "uvdose.service.cli", "serve", "--bind", "{bind}"],  # with deploy/gunicorn.conf.py
-    ["-c", "from uvdose.service.cli import serve; serve('{bind}', 1, None)"],  # the built-in defaults
-], ids=["deploy-config", "built-in-defaults"])
+    ["-m", "uvdose.service.cli", "serve", "--bind", "{bind}", "--config", str(REPO / "deploy" / "gunicorn.conf.py")],
+    ["-c", "from uvdose.service.cli import serve; serve('{bind}', 1, None)"],  # the built-in settings
+], ids=["deploy-config", "built-in-settings"])
 def test_serve_runs_gunicorn_and_stops_cleanly_on_sigterm(tmp_path, command):
     port = free_loopback_port()
     env = {**os.environ, "UVDOSE_WORKERS": "1"}

@@ -10,12 +10,26 @@ def test_livez_answers_alive(client):
     assert response.get_json() == {"status": "alive"}
 
 
-def test_readyz_reports_engine_and_cache(client):
+def test_readyz_reports_engine_cache_and_contract(client):
     response = client.get("/readyz")
     body = response.get_json()
-    assert set(body["checks"]) == {"engine", "cache"}
+    assert set(body["checks"]) == {"engine", "cache", "contract"}
     assert response.status_code == (200 if body["checks"]["engine"]["ok"] else 503)
     assert isinstance(body["checks"]["cache"]["backend"], str)
+    assert body["checks"]["contract"] == {"ok": True, "version": "0.1.0"}
+
+
+@pytest.mark.parametrize("text", [None, "not: [an, openapi, document]\n"])
+def test_readyz_is_503_when_the_contract_cannot_be_served(make_app, contract_client_for, tmp_path, text):
+    path = tmp_path / "openapi.yaml"
+    if text is not None:
+        path.write_text(text, encoding="utf-8")
+    client = contract_client_for(make_app(UVDOSE_OPENAPI_PATH=str(path)))
+    response = client.get("/readyz")
+    assert response.status_code == 503 and response.get_json()["status"] == "unready"
+    assert response.get_json()["checks"]["contract"]["ok"] is False
+    assert client.get("/openapi.yaml").status_code == 500
+    assert client.get("/docs").status_code == 500
 
 
 def test_readyz_is_503_when_the_engine_cannot_load(client, monkeypatch):
