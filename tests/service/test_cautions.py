@@ -108,6 +108,15 @@ def test_every_example_in_every_answer_format_carries_the_caution(client, openap
             assert 'id="cautions"' in response.get_data(as_text=True)
 
 
+def test_the_contract_documents_the_caution_header_on_every_answer(openapi_spec):
+    missing = [f"{method.upper()} {path} {status}" for path, method, operation in operations(openapi_spec)
+               for status, response in operation["responses"].items()
+               if "$ref" not in response and cautions.CAUTION_HEADER not in response.get("headers", {})]
+    missing += [name for name, response in openapi_spec["components"]["responses"].items()
+                if cautions.CAUTION_HEADER not in response.get("headers", {})]
+    assert missing == []
+
+
 def test_error_and_operational_answers_carry_the_caution_header(client, make_app, contract_client_for):
     record = {"time": "2026-06-21T13:30:00+02:00", "lat": 44.05, "lon": 4.92}
     answers = [
