@@ -4,7 +4,10 @@ Composition (``spectral_irradiance_direct_solve``)
     1. Layer optics of the record's atmosphere (``models.optics.layer_optics``: Bodhaine
        et al. 1999 Rayleigh, DBM ozone cross sections, Ångström aerosol) on the 27 layers
        of the AFGL 1986 U.S. Standard atmosphere (``models.atmosphere``).
-    2. Pseudo-spherical direct-beam air mass per layer (``models.atmosphere.beam_air_mass``).
+    2. Pseudo-spherical beam: the path of the solar ray reaching each level through each
+       layer (``models.atmosphere.beam_path_factors``), for the *true* (airless) solar
+       zenith, the beam's direction at the top of the atmosphere (``models.atmosphere``,
+       "Which zenith angle").
     3. Multiple scattering by the multi-layer four-stream discrete-ordinates solver
        (``models.four_stream.surface_irradiance``; Rayleigh + Henyey-Greenstein phase
        function, shares from ``models.optics.rayleigh_scattering_fraction``) over a Lambertian
@@ -14,9 +17,13 @@ Composition (``spectral_irradiance_direct_solve``)
        (``models.spectral_grid``) and by 1 / d² for the Earth–Sun distance d in AU.
 
 Units: W m⁻² nm⁻¹ on a horizontal surface, on ``models.spectral_grid.WAVELENGTH_NM``.
-Records with the (apparent) solar zenith angle at or above 90° get exact zeros.
+The sun lights the sky until its true zenith reaches
+``models.solar_geometry.CIVIL_TWILIGHT_ZENITH_DEG`` (96°): between 90° and 96° the
+ground gets no direct beam but the diffuse light of the sunlit upper atmosphere (at 90°
+about 2 % of the UV Index at 70°, at 94° a twentieth of that; tests/models/test_low_sun.py);
+records at or beyond 96° get exact zeros.
 
-Inputs are (N,) arrays (scalars broadcast), already validated by the engine: zenith
+Inputs are (N,) arrays (scalars broadcast), already validated by the engine: true zenith
 0–180°, distance 0.98–1.02 AU, ozone 50–700 DU, pressure 300–1100 hPa, albedo 0–1
 (or (N, W) spectral albedo), aerosol as in ``models.optics``.
 
@@ -32,6 +39,7 @@ import numpy as np
 
 from uvdose.models import atmosphere, irradiance_table, optics
 from uvdose.models.four_stream import surface_irradiance
+from uvdose.models.solar_geometry import CIVIL_TWILIGHT_ZENITH_DEG
 from uvdose.models.spectral_grid import WAVELENGTH_NM, extraterrestrial_spectrum_w_m2_nm
 
 METHODS = ("auto", "direct", "table")
@@ -59,12 +67,12 @@ class ClearSkySpectrum:
         return self.direct_horizontal_w_m2_nm + self.diffuse_horizontal_w_m2_nm
 
 
-def _as_record_arrays(solar_zenith_deg, *values):
-    zenith = np.atleast_1d(np.asarray(solar_zenith_deg, dtype=float))
+def _as_record_arrays(true_zenith_deg, *values):
+    zenith = np.atleast_1d(np.asarray(true_zenith_deg, dtype=float))
     return (zenith, *(np.broadcast_to(np.asarray(v, dtype=float), zenith.shape) for v in values))
 
 
-def spectral_irradiance_direct_solve(solar_zenith_deg, earth_sun_distance_au, ozone_du,
+def spectral_irradiance_direct_solve(true_zenith_deg, earth_sun_distance_au, ozone_du,
                                      pressure_hpa, surface_albedo, aod_550, angstrom_exponent,
                                      single_scattering_albedo, asymmetry_factor) -> ClearSkySpectrum:
     """Clear-sky direct and diffuse horizontal spectral irradiance by the full solve.
@@ -73,7 +81,7 @@ def spectral_irradiance_direct_solve(solar_zenith_deg, earth_sun_distance_au, oz
     ``surface_albedo`` may also be (N, W).
     """
     zenith, distance, ozone, pressure, aod, alpha, ssa, g = _as_record_arrays(
-        solar_zenith_deg, earth_sun_distance_au, ozone_du, pressure_hpa, aod_550,
+        true_zenith_deg, earth_sun_distance_au, ozone_du, pressure_hpa, aod_550,
         angstrom_exponent, single_scattering_albedo, asymmetry_factor)
     n_records, n_wavelengths = zenith.size, WAVELENGTH_NM.size
     albedo = np.asarray(surface_albedo, dtype=float)
@@ -82,7 +90,7 @@ def spectral_irradiance_direct_solve(solar_zenith_deg, earth_sun_distance_au, oz
 
     direct = np.zeros((n_records, n_wavelengths))
     diffuse = np.zeros((n_records, n_wavelengths))
-    sun_up = np.flatnonzero(zenith < 90.0)
+    sun_up = np.flatnonzero(zenith < CIVIL_TWILIGHT_ZENITH_DEG)
     top_of_atmosphere = extraterrestrial_spectrum_w_m2_nm()
     for start in range(0, sun_up.size, CHUNK_RECORDS):
         rows = sun_up[start:start + CHUNK_RECORDS]
@@ -90,8 +98,9 @@ def spectral_irradiance_direct_solve(solar_zenith_deg, earth_sun_distance_au, oz
                                     ssa[rows], g[rows])
         direct_rel, diffuse_rel = surface_irradiance(
             layer.tau, layer.ssa, layer.g, np.cos(np.deg2rad(zenith[rows])), albedo[rows],
-            beam_air_mass=atmosphere.beam_air_mass(zenith[rows]),
+            beam_path_factors=atmosphere.beam_path_factors(zenith[rows]),
             rayleigh_scattering_fraction=optics.rayleigh_scattering_fraction(layer, pressure[rows]))
+        direct_rel[zenith[rows] >= 90.0] = 0.0  # on or below the horizon: no direct beam
         scale = top_of_atmosphere[None, :] / distance[rows, None] ** 2
         direct[rows] = direct_rel * scale
         diffuse[rows] = diffuse_rel * scale
@@ -128,20 +137,21 @@ class FullSolveBudget:
         self.used += records
 
 
-def spectral_irradiance(solar_zenith_deg, earth_sun_distance_au, ozone_du, pressure_hpa,
+def spectral_irradiance(true_zenith_deg, earth_sun_distance_au, ozone_du, pressure_hpa,
                         surface_albedo, aod_550, angstrom_exponent, single_scattering_albedo,
                         asymmetry_factor, method: str = "auto",
                         full_solve_budget: FullSolveBudget | None = None) -> ClearSkySpectrum:
     """Clear-sky direct and diffuse horizontal spectral irradiance, W m⁻² nm⁻¹, (N, W).
 
-    ``method``: "direct" runs the full solve (:func:`spectral_irradiance_direct_solve`);
+    ``true_zenith_deg`` is the true (airless) solar zenith (``models.solar_geometry``'s
+    ``true_zenith_deg``), not the apparent one. ``method``: "direct" runs the full solve (:func:`spectral_irradiance_direct_solve`);
     "table" interpolates the precomputed table of ``models.irradiance_table``; "auto" uses
     the table for records inside its range and the full solve for the rest; "table"
     refuses a daytime record outside the table, naming the record and the field.
     ``full_solve_budget``, when given, bounds the records the "auto" method sends to the
     full solve.
     """
-    arguments = (solar_zenith_deg, earth_sun_distance_au, ozone_du, pressure_hpa,
+    arguments = (true_zenith_deg, earth_sun_distance_au, ozone_du, pressure_hpa,
                  surface_albedo, aod_550, angstrom_exponent, single_scattering_albedo,
                  asymmetry_factor)
     if method == "direct":

@@ -5,11 +5,9 @@ composite trapezoid rule on nodes that include both exact window edges plus ever
 multiple of ``step_s`` seconds of POSIX time inside the window. Aligning interior
 nodes on a UTC grid means that many windows share sample times, which the solar
 position code evaluates once per distinct time. The rule is exact for irradiance
-constant or linear in time. The sun below the horizon contributes zero because the
-clear-sky model returns exact zeros there. At the apparent horizon the model's diffuse
-irradiance steps from zero to a small value (about 2 mW m⁻² erythemal); a window that
-contains that instant is off by at most half a step times that value (≈ 0.5 J m⁻² at
-the 10-minute default), which daily totals avoid by integrating between those instants.
+constant or linear in time. The clear-sky model lights the sky through civil twilight
+(until the sun is 6° below the horizon) and returns exact zeros beyond, where its UV
+has fallen below 1e-4 of the high-sun value; the irradiance is continuous in time.
 
 Irradiance comes from an *evaluator*: a function from a dict of per-sample input
 columns (the names of ``models.engine.Conditions``) to a dict of result columns
@@ -22,8 +20,8 @@ quadrature (8 nodes by default: a smooth integrand between the edges, and 4–5 
 fewer engine samples than a 20-minute trapezoid for the same accuracy, measured in
 ``tests/models/test_dose.py``). Sunrise and sunset per field and day come from
 ``models.solar_geometry.sunrise_transit_sunset`` (Reda & Andreas 2004, Appendix A.2);
-the integration limits use the same algorithm at the model's own horizon (see
-:func:`field_season`).
+the integration limits use the same algorithm at the end of civil twilight, where the
+model's sky goes dark (see :func:`field_season`).
 """
 from __future__ import annotations
 
@@ -34,7 +32,7 @@ import numpy as np
 
 from uvdose.models import engine, uncertainty
 from uvdose.models.record_errors import check_records
-from uvdose.models.solar_geometry import HORIZON_REFRACTION_DEG, sunrise_transit_sunset
+from uvdose.models.solar_geometry import CIVIL_TWILIGHT_ZENITH_DEG, sunrise_transit_sunset
 
 Columns = dict[str, np.ndarray]
 Evaluator = Callable[[Columns], Columns]
@@ -46,7 +44,6 @@ DEFAULT_DAY_STEP_S = 1200.0
 MIN_STEP_S, MAX_STEP_S = 10.0, 3600.0
 CHUNK_SAMPLES = 50_000
 """Samples per evaluator call: bounds memory (the engine holds several (n, 121) arrays)."""
-EDGE_NUDGE_S = 1.0
 DEFAULT_GAUSS_NODES = 8
 """Gauss–Legendre nodes per daylight period; ``tests/models/test_dose.py`` measures the
 error against a 1-minute trapezoid on the engine (well under 1 %)."""
@@ -262,14 +259,14 @@ def field_season(per_field: Mapping[str, np.ndarray], day_unix_s, evaluate: Eval
                  step_s: float = DEFAULT_DAY_STEP_S, reference_ozone=_climatological_ozone,
                  spectra: Sequence[str] | None = None, day_quadrature: str = "gauss_legendre",
                  gauss_nodes: int = DEFAULT_GAUSS_NODES) -> FieldSeason:
-    """Daily doses from sunrise to sunset for F fields on D days, with season sums.
+    """Daily doses from civil dawn to dusk for F fields on D days, with season sums.
 
     ``per_field``: Conditions columns (F,) (at least latitude_deg, longitude_deg).
     ``day_unix_s`` (D,): UTC midnights; day d is the daylight period around the solar
-    transit that falls on that UTC date. ``ozone_du`` and ``cloud_modification_factor``
-    optional (F, D) per-day inputs, NaN = not given (resolver ozone, CMF 1);
-    ``cloud_source`` (F, D) optionally says where each CMF came from
-    (``models.uncertainty.CLOUD_SOURCES``).
+    transit that falls on that UTC date, from dawn to dusk of civil twilight.
+    ``ozone_du`` and ``cloud_modification_factor`` optional (F, D) per-day inputs, NaN =
+    not given (resolver ozone, CMF 1); ``cloud_source`` (F, D) optionally says where each
+    CMF came from (``models.uncertainty.CLOUD_SOURCES``).
     Quadrature over each daylight period: Gauss–Legendre with ``gauss_nodes`` nodes
     (default) or the composite trapezoid at ``step_s``.
     All field-days go through the evaluator together, in bounded chunks.
@@ -295,15 +292,11 @@ def field_season(per_field: Mapping[str, np.ndarray], day_unix_s, evaluate: Eval
     ozone = per_day(ozone_du, "ozone_du")
     cmf = per_day(cloud_modification_factor, "cloud_modification_factor")
     sunrise, _, sunset, state = sunrise_transit_sunset(days, lat, lon)
-    # Integrate while the model's sun is up: its apparent zenith below 90°, i.e. the
-    # geometric elevation above −0.5667° (SPA's horizon refraction). At that moment
-    # the clear-sky diffuse irradiance steps from exactly zero to a small positive
-    # value, so the edges are nudged one second inside and evaluated.
+    # Integrate while the model's sky is lit: from dawn to dusk of civil twilight (true
+    # elevation above −6°), where the clear-sky irradiance falls continuously to zero.
     rise, _, set_, model_state = sunrise_transit_sunset(
-        days, lat, lon, elevation_deg=-HORIZON_REFRACTION_DEG)
-    inside = (model_state == 0).ravel()
-    start = np.where(inside, rise.ravel() + EDGE_NUDGE_S, rise.ravel())
-    end = np.where(inside, set_.ravel() - EDGE_NUDGE_S, set_.ravel())
+        days, lat, lon, elevation_deg=90.0 - CIVIL_TWILIGHT_ZENITH_DEG)
+    start, end = rise.ravel(), set_.ravel()
     if day_quadrature == "gauss_legendre":
         nodes = gauss_legendre_nodes(start, end, gauss_nodes)
     elif day_quadrature == "trapezoid":

@@ -299,8 +299,10 @@ def compute(
     surface_albedo = _surface_albedo(c)
     aod_550 = _given(c.aod_550, optics.DEFAULT_AOD_550)
 
+    # The radiative transfer takes the beam's direction at the top of the atmosphere (the
+    # true zenith, models.atmosphere); receivers and the reported position the apparent one.
     sky = clear_sky.spectral_irradiance(
-        sun.zenith_deg,
+        sun.true_zenith_deg,
         sun.earth_sun_distance_au,
         ozone_du,
         pressure_hpa,
@@ -347,7 +349,7 @@ def compute(
     ozone_sigma = resolver.relative_sigma(ozone_source, c.latitude_deg, c.longitude_deg, c.time_unix_s)
     requested = list(dict.fromkeys(spectra))
     relative_sigma = _relative_sigma(
-        c, sun.zenith_deg, ozone_du, ozone_sigma, aod_550, surface_albedo, cloud_source, cmf,
+        c, sun.true_zenith_deg, ozone_du, ozone_sigma, aod_550, surface_albedo, cloud_source, cmf,
         transmittance, weights, names, requested,
         {"uv_index": uvi, **{name: by_name[name] for name in requested}})
     return EngineResult(

@@ -29,8 +29,13 @@ Methods (each implemented below, where it is used):
 - Lambertian surface through the spherical albedo ``S``: ``global(a) = global(0) / (1 - a S)``
   (Tanre et al. 1979; ``models.solver_parts.apply_surface_albedo``); exact here too, since
   the light a Lambertian surface reflects is isotropic.
-- Pseudo-spherical beam: attenuated along a per-layer air mass, diffuse source
-  plane-parallel with ``mu0`` (Dahlback & Stamnes 1991, *Planet. Space Sci.* 39:671).
+- Pseudo-spherical beam (Dahlback & Stamnes 1991, *Planet. Space Sci.* 39:671; DISORT's
+  pseudo-spherical option): the slant optical depth of every level along the ray that
+  reaches it (``models.atmosphere.beam_path_factors``), the beam attenuated within each
+  layer at the average secant between its two levels, the diffuse source computed with
+  the one ``mu0`` (``models.solver_parts.beam_geometry``). This solves the same equations
+  as 4-stream DISORT in its pseudo-spherical mode, also with the sun up to 6 degrees below
+  the horizon (tests/models/test_low_sun.py).
 
 Phase function of each layer: a mixture of Rayleigh scattering (share
 ``rayleigh_scattering_fraction`` of the layer's scattering; Legendre moment chi_2 = 0.1,
@@ -41,14 +46,17 @@ the layer's asymmetry factor ``g``.
 Numerical safeguards (``models.solver_parts``, shared with ``models.two_stream``): the
 scaled single scattering albedo is capped at ``1 - 1e-9``, and where the beam rate ``m``
 comes within a relative 1e-4 of an eigenvalue ``k`` the particular solution is taken at
-``k (1 +- 1e-4)``. All exponentials have non-positive arguments.
+``k (1 +- 1e-4)`` (also for a negative rate, the beam brighter at a layer's bottom). The
+homogeneous solution's exponentials have non-positive arguments; the beam's are bounded
+by a slant optical depth of 600, beyond which a level counts as dark.
 
-Known limitations (measured against 16-stream DISORT, tests/models/test_four_stream.py):
-four streams resolve the low-sun skylight to within 2.3 % for weighted irradiances up to
-80 degrees (slightly low, as DISORT with four streams is), but single wavelengths near
-300 nm at 75-80 degrees (where the flux is a thousandth of its noon value) are off by up
-to about 7 %. The upward flux at the top is
-computed for the energy check only.
+Known limitations (measured against 16-stream DISORT, tests/models/test_four_stream.py
+plane-parallel, tests/models/test_low_sun.py pseudo-spherical): four streams resolve the
+low-sun skylight to within 2.3 % for weighted irradiances up to 80 degrees and within
+about 3 % to 88 degrees and through twilight (slightly low, as DISORT with four streams
+is), but single wavelengths near 300 nm at 75-80 degrees (where the flux is a thousandth
+of its noon value) are off by up to about 7 %. The upward flux at the top is computed
+for the energy check only.
 
 Units: per unit extraterrestrial irradiance on a surface normal to the beam; the direct
 beam returned is the delta-M-scaled one (as DISORT's ``rfldir``).
@@ -58,7 +66,9 @@ from __future__ import annotations
 import numpy as np
 
 from uvdose.models.solver_parts import (TransferComponents, apply_surface_albedo, beam_geometry,
-                                        checked_layer_inputs, delta_scaled, separated_beam_rate)
+                                        checked_layer_inputs, delta_scaled,
+                                        direct_horizontal_flux, layer_beam,
+                                        level_slant_depths, separated_beam_rate)
 
 RAYLEIGH_PHASE_MOMENT_2 = 0.1
 """Second Legendre moment of the Rayleigh phase function (3/4)(1 + cos^2) (Chandrasekhar
@@ -128,8 +138,8 @@ def _layer_matrices(tau_s, w, moments_s, mu0, attenuation):
     """Reflection/transmission matrices and beam responses of one homogeneous layer.
 
     ``tau_s, w`` (N, W) scaled optical depth and single scattering albedo, ``moments_s``
-    (N, W, 4) scaled moments chi'_0..chi'_3, ``mu0`` (N, 1), ``attenuation`` (N, 1) beam
-    rate per unit scaled optical depth. Radiances are on the two streams of each
+    (N, W, 4) scaled moments chi'_0..chi'_3, ``mu0`` (N, 1), ``attenuation`` (N, W) (or
+    broadcastable) beam rate per unit scaled optical depth, which may be negative. Radiances are on the two streams of each
     hemisphere. Returns ``(R, T, r_beam, t_beam, beam_transmission)``: ``R, T`` (2, 2, N, W)
     (the layer is homogeneous: the same from either side), ``r_beam, t_beam`` (2, N, W)
     the up- and downward radiances leaving the layer per unit beam irradiance (normal to
@@ -203,16 +213,19 @@ def _flux(radiance):
 
 
 def transfer_components(tau, ssa, g, mu0, beam_air_mass=None,
-                        rayleigh_scattering_fraction=0.0) -> TransferComponents:
+                        rayleigh_scattering_fraction=0.0,
+                        beam_path_factors=None) -> TransferComponents:
     """Surface direct and diffuse flux over a black surface and the spherical albedo.
 
-    Parameters as for :func:`surface_irradiance` (without the albedo). Records with
-    ``mu0 <= 0`` get exact zeros for the fluxes.
+    Parameters as for :func:`surface_irradiance` (without the albedo). Records the sun
+    does not light (``mu0 <= 0`` without ``beam_path_factors``; every level below the top
+    in the Earth's shadow with them) get exact zeros for the fluxes.
     """
-    tau, ssa, g, mu0, beam_air_mass = checked_layer_inputs(tau, ssa, g, mu0, beam_air_mass)
+    tau, ssa, g, mu0, beam_air_mass, beam_path_factors = checked_layer_inputs(
+        tau, ssa, g, mu0, beam_air_mass, beam_path_factors)
     n_records, n_layers, n_wavelengths = tau.shape
     moments = mixture_phase_moments(g, rayleigh_scattering_fraction)
-    sun_up, mu_sun, air_mass = beam_geometry(mu0, beam_air_mass, n_layers)
+    sun_up, mu_sun, path = beam_geometry(mu0, beam_air_mass, n_layers, beam_path_factors)
 
     # Delta-M (Wiscombe 1977): f = chi_4, chi'_l = (chi_l - f) / (1 - f).
     forward_fraction = moments[..., 3]
@@ -222,16 +235,17 @@ def transfer_components(tau, ssa, g, mu0, beam_air_mass=None,
     scaled[..., 1:] = ((moments[..., :3] - forward_fraction[..., None])
                        / (1.0 - forward_fraction[..., None]))
 
+    slant_depth = level_slant_depths(path, tau_s)
     shape = (n_records, n_wavelengths)
-    beam = np.ones(shape)
     diffuse_down = np.zeros((2,) + shape)
     reflect_from_below = np.zeros((2, 2) + shape)
     reflected = np.zeros((2,) + shape)
     transmit_up = np.broadcast_to(_IDENTITY, (2, 2) + shape)
     mu_col = mu_sun[:, None]
     for layer in range(n_layers):
-        r, t, r_beam, t_beam, beam_transmission = _layer_matrices(
-            tau_s[:, layer], w[:, layer], scaled[:, layer], mu_col, air_mass[:, layer, None])
+        beam, rate = layer_beam(slant_depth, tau_s, layer)
+        r, t, r_beam, t_beam, _ = _layer_matrices(
+            tau_s[:, layer], w[:, layer], scaled[:, layer], mu_col, rate)
         # Adding: multiple reflections between the stack above and the new layer.
         bounce_down = _inv2(_IDENTITY - _mm(reflect_from_below, r))
         down_at_interface = _mv(bounce_down, diffuse_down + _mv(reflect_from_below, r_beam) * beam)
@@ -241,12 +255,11 @@ def transfer_components(tau, ssa, g, mu0, beam_air_mass=None,
         transmit_up = _mm(_mm(transmit_up, bounce_up), t)
         diffuse_down = _mv(t, down_at_interface) + t_beam * beam
         reflect_from_below = r + _mm(_mm(t, reflect_from_below), _mm(bounce_up, t))
-        beam = beam * beam_transmission
 
     isotropic = np.ones((2,) + shape)
     spherical_albedo = _flux(_mv(reflect_from_below, isotropic)) / np.pi
     transmittance_up = _flux(_mv(transmit_up, isotropic)) / np.pi
-    direct_horizontal = np.where(sun_up[:, None], mu_col * beam, 0.0)
+    direct_horizontal = direct_horizontal_flux(sun_up, mu_sun, slant_depth)
     diffuse_flux = np.where(sun_up[:, None], _flux(diffuse_down), 0.0)
     reflected_flux = np.where(sun_up[:, None], _flux(reflected), 0.0)
     return TransferComponents(direct_horizontal, diffuse_flux, spherical_albedo,
@@ -254,17 +267,20 @@ def transfer_components(tau, ssa, g, mu0, beam_air_mass=None,
 
 
 def surface_irradiance(tau, ssa, g, mu0, albedo, beam_air_mass=None,
-                       rayleigh_scattering_fraction=0.0):
+                       rayleigh_scattering_fraction=0.0, beam_path_factors=None):
     """Direct and diffuse downward flux at the surface of a layered atmosphere.
 
     Parameters as for ``models.two_stream.surface_irradiance``, plus
     ``rayleigh_scattering_fraction`` (broadcastable to (N, L, W)): the share of each
     layer's scattering by molecules, the rest Henyey-Greenstein with asymmetry
-    ``g / (1 - share)`` (default 0: all Henyey-Greenstein).
+    ``g / (1 - share)`` (default 0: all Henyey-Greenstein), and ``beam_path_factors``
+    (N, L + 1, L) in place of ``beam_air_mass``: the pseudo-spherical beam per level
+    (``models.atmosphere.beam_path_factors``), which also lights a sun below the horizon.
     Returns ``(direct_horizontal, diffuse_down)``, (N, W), per unit extraterrestrial
     irradiance normal to the beam.
     """
-    parts = transfer_components(tau, ssa, g, mu0, beam_air_mass, rayleigh_scattering_fraction)
+    parts = transfer_components(tau, ssa, g, mu0, beam_air_mass, rayleigh_scattering_fraction,
+                                beam_path_factors)
     return apply_surface_albedo(
         parts.direct_horizontal, parts.diffuse_down_black_surface, parts.spherical_albedo, albedo
     )

@@ -4,7 +4,7 @@ The full solve (``models.clear_sky.spectral_irradiance_direct_solve``: layer opt
 pseudo-spherical beam, four-stream discrete ordinates of ``models.four_stream``) runs
 at about a hundred records per second. For the default aerosol type (Ångström exponent, single scattering albedo and
 asymmetry factor of ``models.optics``) the surface fluxes depend on four record
-inputs only: solar zenith, total ozone, surface pressure and AOD(550). This table holds,
+inputs only: true solar zenith, total ozone, surface pressure and AOD(550). This table holds,
 per wavelength of ``models.spectral_grid.WAVELENGTH_NM``:
 
 - ``log_global_black``: ln of the global (direct + diffuse) horizontal flux over a black
@@ -37,7 +37,9 @@ the UV Index, every action spectrum of ``models.action_spectra`` and the UVB/UVA
 over the whole range (``tests/models/test_irradiance_table.py``).
 
 Range (outside it, or with a non-default aerosol type, ``models.clear_sky`` uses the
-full solve): zenith 0–90°, ozone 100–700 DU, pressure 500–1060 hPa, AOD(550) 0–2.
+full solve): true zenith 0–96° (the sun up to 6° below the horizon: the diffuse light of
+civil twilight, no direct beam beyond 90°), ozone 100–700 DU, pressure 500–1060 hPa,
+AOD(550) 0–2.
 
 The table file ``models/data/irradiance_table.npz`` is written by
 ``models/data/build_irradiance_table.py`` and carries a fingerprint (``MODEL_VERSION``
@@ -56,6 +58,7 @@ import scipy.sparse
 
 from uvdose.models import MODEL_VERSION, atmosphere, optics
 from uvdose.models.record_errors import RecordError, RecordErrors
+from uvdose.models.solar_geometry import CIVIL_TWILIGHT_ZENITH_DEG
 from uvdose.models.spectral_grid import WAVELENGTH_NM, extraterrestrial_spectrum_w_m2_nm
 from uvdose.models.four_stream import transfer_components
 from uvdose.models.solver_parts import apply_surface_albedo
@@ -68,9 +71,12 @@ ZENITH_NODES_DEG = np.array([
     70.25, 71.75, 73.25, 74.75, 76.0, 77.25, 78.25, 79.25, 80.25, 81.0, 81.75, 82.5, 83.25,
     83.75, 84.5, 85.0, 85.5, 86.0, 86.25, 86.75, 87.0, 87.5, 87.75, 88.25, 88.5, 88.75, 89.0,
     89.25, 89.5, 89.75, 90.0,
+    90.25, 90.5, 90.75, 91.0, 91.5, 92.0, 92.5, 93.0, 93.5, 94.0, 94.5, 95.0, 95.5, 96.0,
 ])
-"""Solar zenith nodes, degrees: about evenly spaced in ln(air mass), rounded, with extra
-nodes at 22-56 degrees, where below 290 nm the global flux turns from beam to skylight."""
+"""True solar zenith nodes, degrees: about evenly spaced in ln(air mass) up to 90, rounded,
+with extra nodes at 22-56 degrees, where below 290 nm the global flux turns from beam to
+skylight; then every 0.25-0.5 degrees through civil twilight (sun below the horizon,
+upper atmosphere lit) to ``models.solar_geometry.CIVIL_TWILIGHT_ZENITH_DEG``."""
 OZONE_NODES_DU = np.array([100.0, 130.0, 165.0, 205.0, 250.0, 300.0, 360.0, 430.0, 510.0,
                            600.0, 700.0])
 """Total ozone nodes, DU (denser at low ozone, where the diffuse flux bends most)."""
@@ -91,18 +97,33 @@ CHUNK_RECORDS = 2048
 """Records interpolated per block (working set about 1 MB per (records, W) array)."""
 
 
-def air_mass_coordinate(solar_zenith_deg, beam_air_mass=None) -> np.ndarray:
-    """Air-column-weighted pseudo-spherical beam air mass, (N,): the zenith axis variable.
+def air_mass_coordinate(true_zenith_deg, beam_air_mass=None) -> np.ndarray:
+    """The zenith axis variable, (N,): the air-column-weighted air mass of the direct beam.
 
     ``sum_l air_fraction_l * m_l(zenith)`` with ``m_l`` from
     ``models.atmosphere.beam_air_mass`` (pass it as ``beam_air_mass`` (N, L) if already
-    computed); monotonic in the zenith angle, about sec(zenith) for a high sun.
+    computed); monotonic in the zenith angle, about sec(zenith) for a high sun. Beyond 90
+    degrees (no direct beam) it continues as ``m(90) exp(s (zenith - 90))``, with ``s``
+    the slope of ln m at 90 degrees, so that ln m stays smooth through the horizon.
     """
     layers = atmosphere.standard_layers()
+    zenith = np.atleast_1d(np.asarray(true_zenith_deg, dtype=float))
     if beam_air_mass is None:
-        zenith = np.atleast_1d(np.asarray(solar_zenith_deg, dtype=float))
         beam_air_mass = atmosphere.beam_air_mass(zenith, layers)
-    return beam_air_mass @ layers.air_column_fraction
+    air_mass = beam_air_mass @ layers.air_column_fraction
+    below_horizon = zenith > 90.0
+    if np.any(below_horizon):
+        air_mass = np.where(below_horizon,
+                            air_mass * np.exp(_horizon_log_slope() * (zenith - 90.0)), air_mass)
+    return air_mass
+
+
+@lru_cache(maxsize=1)
+def _horizon_log_slope() -> float:
+    """d ln m / d zenith (per degree) at 90 degrees, one-sided."""
+    layers = atmosphere.standard_layers()
+    ends = atmosphere.beam_air_mass(np.array([90.0 - 1e-3, 90.0]), layers) @ layers.air_column_fraction
+    return float(np.log(ends[1] / ends[0]) / 1e-3)
 
 
 def fingerprint() -> str:
@@ -113,14 +134,15 @@ def fingerprint() -> str:
                   AOD_NODES, np.array(DEFAULT_AEROSOL_TYPE)):
         digest.update(np.ascontiguousarray(array, dtype=np.float64).tobytes())
     # Reference point: optics and solver output, rounded so that only real changes count.
-    zenith = np.array([30.0, 80.0])
-    layer = optics.layer_optics(np.array([320.0, 320.0]), 1000.0, 0.3, *DEFAULT_AEROSOL_TYPE)
-    air_mass = atmosphere.beam_air_mass(zenith)
+    zenith = np.array([30.0, 80.0, 93.0])
+    layer = optics.layer_optics(np.full(3, 320.0), 1000.0, 0.3, *DEFAULT_AEROSOL_TYPE)
+    path = atmosphere.beam_path_factors(zenith)
     parts = transfer_components(layer.tau, layer.ssa, layer.g, np.cos(np.deg2rad(zenith)),
-                                beam_air_mass=air_mass,
+                                beam_path_factors=path,
                                 rayleigh_scattering_fraction=optics.rayleigh_scattering_fraction(
-                                    layer, np.full(2, 1000.0)))
-    for array in (layer.tau, layer.ssa, layer.g, air_mass, parts.direct_horizontal,
+                                    layer, np.full(3, 1000.0)))
+    for array in (layer.tau, layer.ssa, layer.g, np.where(np.isinf(path), -1.0, path),
+                  parts.direct_horizontal,
                   parts.diffuse_down_black_surface, parts.spherical_albedo):
         digest.update(np.round(np.asarray(array, dtype=np.float64), 9).tobytes())
     return digest.hexdigest()
@@ -159,8 +181,8 @@ def compute_table() -> dict[str, np.ndarray]:
     log_global = np.empty((n_z, n_o, n_p, n_a, n_w), dtype=np.float32)
     spherical = np.empty((n_o, n_p, n_a, n_w), dtype=np.float32)
     mu0 = np.cos(np.deg2rad(ZENITH_NODES_DEG))
-    air_mass = atmosphere.beam_air_mass(ZENITH_NODES_DEG)
-    ozone_slant = ozone_slant_optical_depth_per_du(air_mass)  # (Z, W)
+    path = atmosphere.beam_path_factors(ZENITH_NODES_DEG)
+    ozone_slant = ozone_slant_optical_depth_per_du(atmosphere.beam_air_mass(ZENITH_NODES_DEG))
     for i_o, ozone_du in enumerate(OZONE_NODES_DU):
         for i_p, pressure_hpa in enumerate(PRESSURE_NODES_HPA):
             # One call per (ozone, pressure): records are AOD x zenith.
@@ -169,7 +191,7 @@ def compute_table() -> dict[str, np.ndarray]:
                                         *DEFAULT_AEROSOL_TYPE)
             parts = transfer_components(
                 layer.tau, layer.ssa, layer.g, np.tile(mu0, n_a),
-                beam_air_mass=np.tile(air_mass, (n_a, 1)),
+                beam_path_factors=np.tile(path, (n_a, 1, 1)),
                 rayleigh_scattering_fraction=optics.rayleigh_scattering_fraction(
                     layer, np.full(aod.size, pressure_hpa)))
             direct = parts.direct_horizontal.reshape(n_a, n_z, n_w) / mu0[None, :, None]
@@ -218,12 +240,12 @@ def load_table(path: Path = TABLE_FILE) -> IrradianceTable:
         )
 
 
-def in_table_range(solar_zenith_deg, ozone_du, pressure_hpa, aod_550, angstrom_exponent,
+def in_table_range(true_zenith_deg, ozone_du, pressure_hpa, aod_550, angstrom_exponent,
                    single_scattering_albedo, asymmetry_factor) -> np.ndarray:
     """Boolean (N,): records the table covers (default aerosol type, inside every axis)."""
     zenith, ozone, pressure, aod, alpha, ssa, g = np.broadcast_arrays(*(
         np.atleast_1d(np.asarray(v, dtype=float)) for v in (
-            solar_zenith_deg, ozone_du, pressure_hpa, aod_550, angstrom_exponent,
+            true_zenith_deg, ozone_du, pressure_hpa, aod_550, angstrom_exponent,
             single_scattering_albedo, asymmetry_factor)))
     inside = ((zenith >= ZENITH_NODES_DEG[0]) & (zenith <= ZENITH_NODES_DEG[-1])
               & (ozone >= OZONE_NODES_DU[0]) & (ozone <= OZONE_NODES_DU[-1])
@@ -287,7 +309,7 @@ def _corner_weights(axes):
         shape=(n, int(np.prod(shape))))
 
 
-def relative_surface_flux(solar_zenith_deg, ozone_du, pressure_hpa, surface_albedo, aod_550,
+def relative_surface_flux(true_zenith_deg, ozone_du, pressure_hpa, surface_albedo, aod_550,
                           table: IrradianceTable | None = None):
     """Direct and diffuse horizontal flux per unit extraterrestrial irradiance, (N, W) each.
 
@@ -295,7 +317,7 @@ def relative_surface_flux(solar_zenith_deg, ozone_du, pressure_hpa, surface_albe
     ``surface_albedo`` is (N,), scalar or (N, W).
     """
     table = table or load_table()
-    zenith = np.atleast_1d(np.asarray(solar_zenith_deg, dtype=float))
+    zenith = np.atleast_1d(np.asarray(true_zenith_deg, dtype=float))
     n = zenith.size
     ozone, pressure, aod = (np.broadcast_to(np.asarray(v, dtype=float), (n,))
                             for v in (ozone_du, pressure_hpa, aod_550))
@@ -323,6 +345,8 @@ def relative_surface_flux(solar_zenith_deg, ozone_du, pressure_hpa, surface_albe
     log_direct -= ozone.astype(np.float32)[:, None] * ozone_slant
     direct = np.exp(log_direct, out=log_direct)
     direct *= mu0
+    if np.any(zenith >= 90.0):
+        direct[zenith >= 90.0] = 0.0  # the sun below the horizon: no direct beam
     global_black = np.exp(log_global, out=log_global)
     # The interpolated global can dip under the interpolated beam only where the diffuse
     # share is below the interpolation error; it is then taken as no diffuse light.
@@ -336,7 +360,7 @@ def _out_of_range_error(record, zenith, ozone, pressure, aod, alpha, ssa, g) -> 
     """What keeps one record out of the table: the first axis it lies outside, else its
     aerosol type."""
     checks = (
-        ("solar_zenith_deg", zenith, ZENITH_NODES_DEG, " deg"),
+        ("true_zenith_deg", zenith, ZENITH_NODES_DEG, " deg"),
         ("ozone_du", ozone, OZONE_NODES_DU, " DU"),
         ("pressure_hpa", pressure, PRESSURE_NODES_HPA, " hPa"),
         ("aod_550", aod, AOD_NODES, ""),
@@ -350,18 +374,18 @@ def _out_of_range_error(record, zenith, ozone, pressure, aod, alpha, ssa, g) -> 
                                      f"differs from the table's default {DEFAULT_AEROSOL_TYPE}")
 
 
-def spectral_irradiance(solar_zenith_deg, earth_sun_distance_au, ozone_du, pressure_hpa,
+def spectral_irradiance(true_zenith_deg, earth_sun_distance_au, ozone_du, pressure_hpa,
                         surface_albedo, aod_550, angstrom_exponent, single_scattering_albedo,
                         asymmetry_factor, direct_solve=None):
     """Direct and diffuse horizontal spectral irradiance, W m⁻² nm⁻¹, each (N, W).
 
     Arguments as ``models.clear_sky.spectral_irradiance``. Records the table covers are
-    interpolated; records with the sun below the horizon get exact zeros; the rest go
+    interpolated; records with the sun beyond civil twilight get exact zeros; the rest go
     to ``direct_solve`` (a callable with the same arguments returning an object with
     ``direct_horizontal_w_m2_nm`` and ``diffuse_horizontal_w_m2_nm``). Without
     ``direct_solve`` uncovered daytime records raise ``RecordErrors`` naming each and its field.
     """
-    zenith = np.atleast_1d(np.asarray(solar_zenith_deg, dtype=float))
+    zenith = np.atleast_1d(np.asarray(true_zenith_deg, dtype=float))
     n = zenith.size
     distance, ozone, pressure, aod, alpha, ssa, g = (
         np.broadcast_to(np.asarray(v, dtype=float), (n,)) for v in (
@@ -370,8 +394,8 @@ def spectral_irradiance(solar_zenith_deg, earth_sun_distance_au, ozone_du, press
     albedo = np.asarray(surface_albedo, dtype=float)
     albedo = (np.broadcast_to(albedo, (n,))[:, None] if albedo.ndim <= 1
               else np.broadcast_to(albedo, (n, WAVELENGTH_NM.size)))
-    sun_up = zenith < 90.0
-    covered = in_table_range(zenith, ozone, pressure, aod, alpha, ssa, g)
+    sun_up = zenith < CIVIL_TWILIGHT_ZENITH_DEG
+    covered = sun_up & in_table_range(zenith, ozone, pressure, aod, alpha, ssa, g)
     uncovered = np.flatnonzero(sun_up & ~covered)
     if uncovered.size and direct_solve is None:
         raise RecordErrors(_out_of_range_error(i, zenith[i], ozone[i], pressure[i], aod[i],

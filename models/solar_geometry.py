@@ -25,7 +25,11 @@ Refraction. The zenith angle returned is the apparent (refraction-corrected)
 topocentric zenith using SPA's refraction formula (eq. 42 of Reda & Andreas, after
 Bennett), scaled by the record's pressure and temperature. As in SPA, refraction
 is applied only while the Sun's upper limb is above the horizon (true elevation
-≥ −(0.26667° + 0.5667°)); below that the geometric zenith is returned.
+≥ −(0.26667° + 0.5667°)); below that the geometric zenith is returned. The true
+(airless, refraction-free) topocentric zenith is returned beside it: it is the direction
+of the solar beam at the top of the atmosphere, which the radiative transfer uses
+(``models.atmosphere``, "Which zenith angle"), while the apparent one is where an
+observer, a tilted receiver or a roof sees the Sun.
 """
 
 from __future__ import annotations
@@ -46,6 +50,7 @@ __all__ = [
     "STANDARD_SEA_LEVEL_PRESSURE_HPA",
     "HORIZON_REFRACTION_DEG",
     "SUNRISE_ELEVATION_DEG",
+    "CIVIL_TWILIGHT_ZENITH_DEG",
 ]
 
 HORIZON_REFRACTION_DEG = 0.5667
@@ -54,6 +59,11 @@ the apparent sun is on the horizon when its geometric elevation is −0.5667°."
 SUNRISE_ELEVATION_DEG = -0.8333
 """Geometric solar elevation at sunrise and sunset: the upper limb on the horizon with
 standard refraction (Reda & Andreas 2004, Appendix A.2)."""
+CIVIL_TWILIGHT_ZENITH_DEG = 96.0
+"""True solar zenith at the end of civil twilight (the Sun's centre 6° below the
+horizon; the almanac definition, e.g. the Explanatory Supplement to the Astronomical
+Almanac). The clear-sky model lights the sky up to it: beyond it the UV left is under
+1e-4 of its high-sun value (measured, tests/models/test_low_sun.py)."""
 SECONDS_PER_DAY = 86400.0
 
 # U.S. Standard Atmosphere, 1976 (NOAA/NASA/USAF, NOAA-S/T 76-1562), Table 4 and
@@ -83,6 +93,8 @@ class SolarPosition:
     """Topocentric solar position for N records.
 
     zenith_deg: apparent (refraction-corrected) zenith angle, degrees, (N,).
+    true_zenith_deg: true (airless, not refraction-corrected) topocentric zenith angle,
+        degrees, (N,): 90° minus SPA's topocentric elevation without atmosphere (e0).
     azimuth_deg: azimuth clockwise from geographic north, 0–360°, (N,).
     earth_sun_distance_au: Earth–Sun distance, astronomical units, (N,);
         the SPA heliocentric radius vector R (Reda & Andreas 2004, eq. 8–9,
@@ -90,6 +102,7 @@ class SolarPosition:
     """
 
     zenith_deg: np.ndarray
+    true_zenith_deg: np.ndarray
     azimuth_deg: np.ndarray
     earth_sun_distance_au: np.ndarray
 
@@ -173,7 +186,7 @@ def solar_position(
     temperature_c=12.0,
     delta_t_s=None,
 ) -> SolarPosition:
-    """Apparent solar zenith, azimuth and Earth–Sun distance by the NREL SPA.
+    """Apparent and true solar zenith, azimuth and Earth–Sun distance by the NREL SPA.
 
     Parameters (arrays broadcast to a common shape (N,); scalars allowed):
         time_unix_s: POSIX seconds, UTC.
@@ -239,6 +252,7 @@ def solar_position(
     gamma = spa.topocentric_astronomers_azimuth(hour_angle_prime, delta_prime, lat)
     azimuth = spa.topocentric_azimuth_angle(gamma)
     return SolarPosition(zenith_deg=np.asarray(zenith, dtype=float),
+                         true_zenith_deg=np.asarray(90.0 - e0, dtype=float),
                          azimuth_deg=np.asarray(azimuth, dtype=float),
                          earth_sun_distance_au=np.asarray(radius_au, dtype=float))
 

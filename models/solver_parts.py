@@ -3,12 +3,14 @@ eigenvalue guard and the surface-albedo relation.
 
 ``models.two_stream`` (delta-Eddington) and ``models.four_stream`` (discrete ordinates)
 take the same per-layer optics (``tau, ssa, g`` of shape (N, L, W), layers top to
-bottom), the same solar cosine ``mu0`` (N,) and pseudo-spherical beam air mass (N, L),
-and return the same :class:`TransferComponents`. This module holds those parts, each
-used by both solvers:
+bottom), the same solar cosine ``mu0`` (N,) and pseudo-spherical beam geometry (per-level
+path factors (N, L + 1, L) or a per-layer air mass (N, L)), and return the same
+:class:`TransferComponents`. This module holds those parts, each used by both solvers:
 
 - :func:`checked_layer_inputs` and :func:`beam_geometry`: the input contract and the
-  pseudo-spherical direct beam (Dahlback & Stamnes 1991).
+  direct beam's geometry; :func:`level_slant_depths` and :func:`layer_beam`: the beam at
+  the top of each layer and its average secant through it (pseudo-spherical beam of
+  Dahlback & Stamnes 1991, as in DISORT's pseudo-spherical option).
 - :func:`delta_scaled`: the similarity scaling of a layer's optical depth and single
   scattering albedo for a forward-peak fraction ``f`` (``f = g**2`` in delta-Eddington,
   Joseph et al. 1976; ``f = chi_4`` in delta-M, Wiscombe 1977), with the albedo capped
@@ -52,7 +54,7 @@ class TransferComponents:
     """Fraction of diffuse light leaving the surface upward that escapes at the top."""
 
 
-def checked_layer_inputs(tau, ssa, g, mu0, beam_air_mass):
+def checked_layer_inputs(tau, ssa, g, mu0, beam_air_mass, beam_path_factors=None):
     """The solvers' inputs as float64 arrays, after checking shapes and ranges.
 
     Parameters
@@ -63,13 +65,16 @@ def checked_layer_inputs(tau, ssa, g, mu0, beam_air_mass):
     mu0 : array (N,)
         Cosine of the solar zenith angle.
     beam_air_mass : array (N, L) or None
-        Per-layer slant/vertical path ratio of the direct beam.
+        Per-layer slant/vertical path ratio of the direct beam, the same for every level.
+    beam_path_factors : array (N, L + 1, L) or None
+        Per-level path factors of the beam (``models.atmosphere.beam_path_factors``);
+        at most one of the two beam inputs may be given.
 
     Returns
     -------
     tuple
-        ``(tau, ssa, g, mu0, beam_air_mass)``; raises ValueError naming the input that
-        has the wrong shape or range.
+        ``(tau, ssa, g, mu0, beam_air_mass, beam_path_factors)``; raises ValueError naming
+        the input that has the wrong shape or range.
     """
     tau = np.asarray(tau, dtype=np.float64)
     ssa = np.asarray(ssa, dtype=np.float64)
@@ -85,6 +90,8 @@ def checked_layer_inputs(tau, ssa, g, mu0, beam_air_mass):
     n_records, n_layers, _ = tau.shape
     if mu0.shape != (n_records,):
         raise ValueError(f"mu0 must have shape ({n_records},), got {mu0.shape}")
+    if beam_air_mass is not None and beam_path_factors is not None:
+        raise ValueError("give beam_air_mass or beam_path_factors, not both")
     if beam_air_mass is not None:
         beam_air_mass = np.asarray(beam_air_mass, dtype=np.float64)
         if beam_air_mass.shape != (n_records, n_layers):
@@ -92,36 +99,63 @@ def checked_layer_inputs(tau, ssa, g, mu0, beam_air_mass):
                 f"beam_air_mass must have shape ({n_records}, {n_layers}), "
                 f"got {beam_air_mass.shape}"
             )
+    if beam_path_factors is not None:
+        beam_path_factors = np.asarray(beam_path_factors, dtype=np.float64)
+        if beam_path_factors.shape != (n_records, n_layers + 1, n_layers):
+            raise ValueError(
+                f"beam_path_factors must have shape ({n_records}, {n_layers + 1}, {n_layers}), "
+                f"got {beam_path_factors.shape}"
+            )
+        if np.any(np.isnan(beam_path_factors) | (beam_path_factors < 0)):
+            raise ValueError("beam_path_factors must be non-negative (inf in the Earth's shadow)")
     if np.any(tau < 0) or np.any(~np.isfinite(tau)):
         raise ValueError("tau must be finite and non-negative")
     if np.any((ssa < 0) | (ssa > 1)):
         raise ValueError("ssa must lie in [0, 1]")
     if np.any((g <= -1) | (g >= 1)):
         raise ValueError("g must lie in (-1, 1)")
-    return tau, ssa, g, mu0, beam_air_mass
+    return tau, ssa, g, mu0, beam_air_mass, beam_path_factors
 
 
-def beam_geometry(mu0, beam_air_mass, n_layers):
-    """Which records have the sun up, and the direct beam's path through each layer.
+SLANT_DEPTH_LIMIT = 600.0
+"""Slant optical depth beyond which a level counts as dark (the beam there is below
+exp(-600), under 1e-260 of its value at the top): the beam's exponentials then stay
+within exp(+-600), also where its rate through a layer is negative."""
 
-    Pseudo-spherical beam: attenuated along a per-layer air mass while the diffuse
-    source it feeds is plane-parallel with the surface solar cosine.
+SHADOW_SLANT_DEPTH = 1e20
+"""Slant optical depth given to a level in the Earth's shadow (as cdisort's Chapman
+function does): the beam entering a layer whose bottom lies in the shadow is gone within
+1e-20 of the layer's optical depth."""
+
+
+def beam_geometry(mu0, beam_air_mass, n_layers, beam_path_factors=None):
+    """Which records the sun lights, and the direct beam's path to every level.
+
+    Pseudo-spherical beam: the ray reaching each level has its own path through the
+    layers above it (``beam_path_factors``, from ``models.atmosphere.beam_path_factors``);
+    a per-layer air mass stands for the same path to every level; with neither, the beam
+    is plane-parallel (``1/mu0`` in every layer). The diffuse source the beam feeds uses
+    the one solar cosine ``mu0`` at every level: with parallel rays the sun has the same
+    zenith angle everywhere on the site's vertical.
 
     Parameters
     ----------
     mu0 : array (N,)
-        Cosine of the solar zenith angle at the surface.
+        Cosine of the solar zenith angle; with ``beam_path_factors`` it may be negative
+        (sun below the horizon, upper levels still lit).
     beam_air_mass : array (N, L) or None
-        Per-layer air mass of the beam; ``None`` means plane-parallel, ``1/mu0``.
+        Per-layer air mass of the beam.
     n_layers : int
         L.
+    beam_path_factors : array (N, L + 1, L) or None
+        Per-level path factors (``inf`` for levels in the Earth's shadow).
 
     Returns
     -------
     tuple
-        ``(sun_up, mu_sun, air_mass)``: boolean (N,), ``mu0`` with 1 where the sun is
-        down, and the per-layer air mass (N, L) (1 where the sun is down), checked to be
-        finite and >= 1 where the sun is up.
+        ``(lit, mu_sun, path)``: boolean (N,) records whose beam reaches the atmosphere
+        below its top level; ``mu0`` with 1 for the others; path factors (N, L + 1, L)
+        (zeros for the others). A per-layer air mass is checked to be finite and >= 1.
 
     References
     ----------
@@ -129,14 +163,65 @@ def beam_geometry(mu0, beam_air_mass, n_layers):
        radiation field available for photolysis and heating at twilight. Planet. Space
        Sci. 39, 671-683.
     """
-    sun_up = mu0 > 0
-    mu_sun = np.where(sun_up, mu0, 1.0)
+    n_records = mu0.size
+    above = np.tril(np.ones((n_layers + 1, n_layers)), k=-1)  # [i, j]: layer j above level i
+    if beam_path_factors is not None:
+        lit = np.all(np.isfinite(beam_path_factors[:, 1]), axis=-1)
+        mu_sun = np.where(lit, mu0, 1.0)
+        return lit, mu_sun, np.where(lit[:, None, None], beam_path_factors, 0.0)
+    lit = mu0 > 0
+    mu_sun = np.where(lit, mu0, 1.0)
     if beam_air_mass is None:
-        return sun_up, mu_sun, np.broadcast_to((1.0 / mu_sun)[:, None], (mu0.size, n_layers))
-    air_mass = np.where(sun_up[:, None], beam_air_mass, 1.0)
-    if np.any(~np.isfinite(air_mass) | (air_mass < 1.0 - 1e-9)):
-        raise ValueError("beam_air_mass must be finite and >= 1 where the sun is up")
-    return sun_up, mu_sun, air_mass
+        per_layer = np.broadcast_to((1.0 / mu_sun)[:, None], (n_records, n_layers))
+    else:
+        per_layer = np.where(lit[:, None], beam_air_mass, 1.0)
+        if np.any(~np.isfinite(per_layer) | (per_layer < 1.0 - 1e-9)):
+            raise ValueError("beam_air_mass must be finite and >= 1 where the sun is up")
+    path = above[None] * per_layer[:, None, :]
+    return lit, mu_sun, np.where(lit[:, None, None], path, 0.0)
+
+
+def level_slant_depths(path, tau_scaled):
+    """Slant optical depth of the beam from the top to every level, (N, L + 1, W).
+
+    ``path`` (N, L + 1, L) from :func:`beam_geometry`, ``tau_scaled`` (N, L, W) the layers'
+    (delta-scaled) optical depths. Levels in the Earth's shadow get
+    :data:`SHADOW_SLANT_DEPTH`.
+    """
+    finite = np.isfinite(path)
+    depth = np.matmul(np.where(finite, path, 0.0), tau_scaled)
+    depth[~np.all(finite, axis=-1)] = SHADOW_SLANT_DEPTH
+    return depth
+
+
+def direct_horizontal_flux(lit, mu_sun, slant_depth):
+    """Direct beam on the horizontal surface, (N, W): ``mu0 exp(-S_surface)`` where the
+    sun lights the ground (``mu0 > 0`` and the surface level not dark), else 0."""
+    mu = mu_sun[:, None]
+    surface = slant_depth[:, -1]
+    on_ground = lit[:, None] & (mu > 0) & (surface < SLANT_DEPTH_LIMIT)
+    return np.where(on_ground, mu * np.exp(-np.minimum(surface, SLANT_DEPTH_LIMIT)), 0.0)
+
+
+def layer_beam(slant_depth, tau_scaled, layer):
+    """Beam at the top of one layer and its attenuation rate through it, each (N, W).
+
+    The rate is the average secant ``(S_bottom - S_top) / tau`` of DISORT's pseudo-
+    spherical beam (exact at both levels; negative where the beam is brighter at the
+    layer's bottom, which a ray through the ozone layer can be under a low sun). Where the
+    top level is dark (slant depth above :data:`SLANT_DEPTH_LIMIT`) the beam is 0 and the
+    rate 1.
+
+    References
+    ----------
+    .. [1] Dahlback, A. and Stamnes, K. (1991). Planet. Space Sci. 39, 671-683.
+    """
+    top, bottom = slant_depth[:, layer], slant_depth[:, layer + 1]
+    tau = tau_scaled[:, layer]
+    lit = (top < SLANT_DEPTH_LIMIT) & (tau > 0)
+    beam = np.where(top < SLANT_DEPTH_LIMIT, np.exp(-np.minimum(top, SLANT_DEPTH_LIMIT)), 0.0)
+    rate = np.where(lit, (bottom - top) / np.where(lit, tau, 1.0), 1.0)
+    return beam, rate
 
 
 def delta_scaled(tau, ssa, forward_fraction):
@@ -177,7 +262,9 @@ def separated_beam_rate(rate, eigenvalue):
     Where ``rate`` lies within a relative :data:`EIGENVALUE_GUARD` of ``eigenvalue`` the
     particular solution for the attenuated beam is singular; there the rate becomes
     ``eigenvalue * (1 -+ EIGENVALUE_GUARD)`` (on the side it came from), which changes
-    the layer's beam transmission by about 1e-4 of its optical depth.
+    the layer's beam transmission by about 1e-4 of its optical depth. The particular
+    solution is singular at ``rate = -eigenvalue`` too, so a negative rate (the beam
+    brighter at the layer's bottom) is kept off it in the same way.
 
     Parameters
     ----------
@@ -191,11 +278,12 @@ def separated_beam_rate(rate, eigenvalue):
     numpy.ndarray
         ``rate`` (broadcast to the eigenvalue's shape) with those entries moved.
     """
-    gap = eigenvalue - rate
-    too_close = np.abs(gap) < EIGENVALUE_GUARD * rate
+    size = np.abs(rate)
+    gap = eigenvalue - size
+    too_close = np.abs(gap) < EIGENVALUE_GUARD * size
     if np.any(too_close):
         shift = np.where(gap > 0, -EIGENVALUE_GUARD, EIGENVALUE_GUARD)
-        rate = np.where(too_close, eigenvalue * (1.0 + shift), rate)
+        rate = np.where(too_close, np.copysign(eigenvalue * (1.0 + shift), rate), rate)
     return rate
 
 

@@ -17,11 +17,13 @@ Methods (each implemented below, where it is used):
   ``global(a) = global(0) / (1 - a S)`` (Tanre, Herman, Deschamps & de Leffe 1979,
   *Appl. Opt.* 18:3587; the same relation is used in 6S, Vermote et al. 1997). In a
   two-stream adding scheme this relation is exact, so ``S`` comes out of the same pass.
-- Pseudo-spherical direct beam: the beam is attenuated along a per-layer air mass
-  (slant/vertical path ratio, e.g. from a Chapman function) while the diffuse source
-  it feeds is computed plane-parallel with the surface solar cosine ``mu0``
-  (Dahlback & Stamnes 1991, *Planet. Space Sci.* 39:671; the approximation DISORT's
-  pseudo-spherical option uses).
+- Pseudo-spherical direct beam: the slant optical depth of every level along the ray
+  that reaches it (``models.atmosphere.beam_path_factors``, or one per-layer air mass for
+  every level), the beam attenuated within each layer at the average secant between its
+  two levels, while the diffuse source it feeds is computed with the one solar cosine
+  ``mu0`` (Dahlback & Stamnes 1991, *Planet. Space Sci.* 39:671; the approximation
+  DISORT's pseudo-spherical option uses; shared with ``models.four_stream`` through
+  ``models.solver_parts``).
 
 Numerical safeguards (documented because they change numbers, if only slightly):
 
@@ -33,8 +35,10 @@ Numerical safeguards (documented because they change numbers, if only slightly):
   1e-4 of the eigenvalue ``k``, the particular solution is singular; ``m`` is moved to
   ``k (1 +- 1e-4)`` for that layer and wavelength (beam and source alike), which
   changes the layer's beam transmission by about 1e-4 of its optical depth.
-- All exponentials have non-positive arguments, so optically thick layers neither
-  overflow nor lose the solution.
+- The homogeneous solution's exponentials have non-positive arguments, so optically
+  thick layers neither overflow nor lose the solution; the beam's are bounded by a
+  slant optical depth of 600 (``models.solver_parts.SLANT_DEPTH_LIMIT``), also where its
+  average secant through a layer is negative (the beam brighter at the layer's bottom).
 
 ``models.four_stream`` holds a four-stream discrete-ordinates solver with the same array
 contract that meets the low-sun target below (tests/models/test_four_stream.py); the
@@ -71,7 +75,9 @@ from __future__ import annotations
 import numpy as np
 
 from uvdose.models.solver_parts import (TransferComponents, apply_surface_albedo, beam_geometry,
-                                        checked_layer_inputs, delta_scaled, separated_beam_rate)
+                                        checked_layer_inputs, delta_scaled,
+                                        direct_horizontal_flux, layer_beam,
+                                        level_slant_depths, separated_beam_rate)
 
 def _delta_eddington_layer(tau, ssa, g, mu0, attenuation):
     """Reflectance/transmittance of one homogeneous layer, each ``(N, W)``.
@@ -120,28 +126,33 @@ def _delta_eddington_layer(tau, ssa, g, mu0, attenuation):
     return r, t, r_beam, t_beam, beam_transmission
 
 
-def transfer_components(tau, ssa, g, mu0, beam_air_mass=None) -> TransferComponents:
+def transfer_components(tau, ssa, g, mu0, beam_air_mass=None,
+                        beam_path_factors=None) -> TransferComponents:
     """Surface direct and diffuse flux over a black surface and the spherical albedo.
 
-    Parameters as for :func:`surface_irradiance` (without the albedo). Records with
-    ``mu0 <= 0`` get exact zeros for the fluxes (their spherical albedo and upward
-    transmittance are still computed: they do not depend on the sun).
+    Parameters as for :func:`surface_irradiance` (without the albedo). Records the sun
+    does not light (``mu0 <= 0`` without ``beam_path_factors``) get exact zeros for the
+    fluxes (their spherical albedo and upward transmittance are still computed: they do
+    not depend on the sun).
     """
-    tau, ssa, g, mu0, beam_air_mass = checked_layer_inputs(tau, ssa, g, mu0, beam_air_mass)
+    tau, ssa, g, mu0, beam_air_mass, beam_path_factors = checked_layer_inputs(
+        tau, ssa, g, mu0, beam_air_mass, beam_path_factors)
     n_records, n_layers, n_wavelengths = tau.shape
-    sun_up, mu_sun, air_mass = beam_geometry(mu0, beam_air_mass, n_layers)
+    sun_up, mu_sun, path = beam_geometry(mu0, beam_air_mass, n_layers, beam_path_factors)
+    # The beam's slant depths on the delta-Eddington-scaled layers (f = g^2).
+    tau_scaled = delta_scaled(tau, ssa, g * g)[0]
+    slant_depth = level_slant_depths(path, tau_scaled)
 
     shape = (n_records, n_wavelengths)
-    beam = np.ones(shape)              # beam irradiance normal to the beam
     diffuse_down = np.zeros(shape)     # at the bottom of the stack, black below
     reflect_from_below = np.zeros(shape)
     reflected = np.zeros(shape)        # leaving the top, black below
     transmit_up = np.ones(shape)       # diffuse light from below escaping at the top
     mu_col = mu_sun[:, None]
     for layer in range(n_layers):
-        r, t, r_beam, t_beam, beam_transmission = _delta_eddington_layer(
-            tau[:, layer], ssa[:, layer], g[:, layer], mu_col, air_mass[:, layer, None]
-        )
+        beam, rate = layer_beam(slant_depth, tau_scaled, layer)
+        r, t, r_beam, t_beam, _ = _delta_eddington_layer(
+            tau[:, layer], ssa[:, layer], g[:, layer], mu_col, rate)
         # Adding: multiple reflections between the stack above and the new layer.
         bounce = 1.0 / (1.0 - reflect_from_below * r)
         down_at_interface = (diffuse_down + reflect_from_below * r_beam * beam) * bounce
@@ -149,16 +160,15 @@ def transfer_components(tau, ssa, g, mu0, beam_air_mass=None) -> TransferCompone
         transmit_up = transmit_up * t * bounce
         diffuse_down = t * down_at_interface + t_beam * beam
         reflect_from_below = r + t * t * reflect_from_below * bounce
-        beam = beam * beam_transmission
 
-    direct_horizontal = np.where(sun_up[:, None], mu_col * beam, 0.0)
+    direct_horizontal = direct_horizontal_flux(sun_up, mu_sun, slant_depth)
     diffuse_down = np.where(sun_up[:, None], diffuse_down, 0.0)
     reflected = np.where(sun_up[:, None], reflected, 0.0)
     return TransferComponents(direct_horizontal, diffuse_down, reflect_from_below, reflected,
                               transmit_up)
 
 
-def surface_irradiance(tau, ssa, g, mu0, albedo, beam_air_mass=None):
+def surface_irradiance(tau, ssa, g, mu0, albedo, beam_air_mass=None, beam_path_factors=None):
     """Direct and diffuse downward flux at the surface of a layered atmosphere.
 
     Parameters
@@ -171,15 +181,18 @@ def surface_irradiance(tau, ssa, g, mu0, albedo, beam_air_mass=None):
     albedo : array broadcastable to (N, W)
         Lambertian surface albedo in [0, 1].
     beam_air_mass : array (N, L), optional
-        Slant/vertical path ratio of the direct beam in each layer (pseudo-spherical
-        geometry); default ``1/mu0`` in every layer (plane-parallel).
+        Slant/vertical path ratio of the direct beam in each layer, the same for the ray
+        to every level; default ``1/mu0`` in every layer (plane-parallel).
+    beam_path_factors : array (N, L + 1, L), optional
+        In place of ``beam_air_mass``: the pseudo-spherical beam per level
+        (``models.atmosphere.beam_path_factors``); ``mu0`` may then be negative.
 
     Returns
     -------
     (direct_horizontal, diffuse_down) : arrays (N, W)
         Per unit extraterrestrial irradiance normal to the beam.
     """
-    parts = transfer_components(tau, ssa, g, mu0, beam_air_mass)
+    parts = transfer_components(tau, ssa, g, mu0, beam_air_mass, beam_path_factors)
     return apply_surface_albedo(
         parts.direct_horizontal, parts.diffuse_down_black_surface, parts.spherical_albedo, albedo
     )

@@ -85,9 +85,17 @@ def test_beam_air_mass_geometry(layers):
     np.testing.assert_allclose(mass[0], 1.0)
     # Thin high layers see nearly the plane-parallel 1/cos at moderate angles.
     assert mass[1, 0] == pytest.approx(1 / np.cos(np.radians(30.0)), rel=0.01)
-    # Horizontal ray through the lowest 1 km shell: chord sqrt((R+1)² − R²) per km.
+    # Horizontal ray through the lowest 1 km shell: the air along the chord of length
+    # sqrt((R+1)² − R²), density exp(−h/H) at height h(s) = sqrt(R² + s²) − R, over the
+    # layer's vertical column; reference: scipy's adaptive quadrature of that integral.
+    from scipy.integrate import quad
+
     radius = atmosphere.EARTH_RADIUS_KM
-    assert mass[2, -1] == pytest.approx(np.sqrt((radius + 1.0) ** 2 - radius ** 2), rel=1e-9)
+    scale = layers.air_scale_height_km[-1]
+    chord = np.sqrt((radius + 1.0) ** 2 - radius ** 2)
+    along, _ = quad(lambda s: np.exp(-(np.hypot(radius, s) - radius) / scale), 0.0, chord,
+                    epsabs=0.0, epsrel=1e-12)
+    assert mass[2, -1] == pytest.approx(along / (scale * -np.expm1(-1.0 / scale)), rel=1e-6)
     assert np.all(np.isfinite(mass))
     # Slant paths grow with the zenith angle in every layer.
     assert np.all(np.diff(mass, axis=0) > 0)

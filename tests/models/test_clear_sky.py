@@ -32,12 +32,16 @@ def test_shapes_and_sign():
     assert np.all(np.diff(global_h, axis=0) < 0.0)
 
 
-def test_exact_zeros_with_the_sun_at_or_below_the_horizon():
-    result = solve([90.0, 95.0, 179.0, 45.0])
-    assert np.all(result.direct_horizontal_w_m2_nm[:3] == 0.0)
-    assert np.all(result.diffuse_horizontal_w_m2_nm[:3] == 0.0)
-    assert result.global_horizontal_w_m2_nm[3, -1] > 0.1
-    assert np.all(np.isfinite(result.global_horizontal_w_m2_nm))
+def test_twilight_has_skylight_only_and_night_exact_zeros():
+    # Sun on or below the horizon: no direct beam; the sunlit upper atmosphere's skylight
+    # through civil twilight (true zenith below 96 degrees), exact zeros beyond.
+    for method in ("direct", "table"):
+        result = solve([90.0, 95.0, 96.0, 179.0, 45.0], method=method)
+        assert np.all(result.direct_horizontal_w_m2_nm[:4] == 0.0)
+        assert np.all(result.diffuse_horizontal_w_m2_nm[:2, -1] > 0.0)
+        assert np.all(result.diffuse_horizontal_w_m2_nm[2:4] == 0.0)
+        assert result.global_horizontal_w_m2_nm[4, -1] > 0.1
+        assert np.all(np.isfinite(result.global_horizontal_w_m2_nm))
 
 
 def test_sun_just_above_the_horizon_is_finite_and_small():

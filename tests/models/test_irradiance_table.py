@@ -20,12 +20,14 @@ from uvdose.models.spectral_grid import WAVELENGTH_NM
 SPECTRA = list(action_spectra.ACTION_SPECTRA)
 
 
-def random_records(n, seed):
+def random_records(n, seed, zenith_range_deg=(0.0, 90.0)):
     rng = np.random.default_rng(seed)
-    zenith = rng.uniform(0.0, ZENITH_NODES_DEG[-1], n)
-    zenith[: n // 4] = rng.uniform(75.0, ZENITH_NODES_DEG[-1], n // 4)  # where it bends
+    low, high = zenith_range_deg
+    zenith = rng.uniform(low, high, n)
+    if low < 75.0:
+        zenith[: n // 4] = rng.uniform(75.0, high, n // 4)  # where it bends
     return dict(
-        solar_zenith_deg=zenith,
+        true_zenith_deg=zenith,
         earth_sun_distance_au=rng.uniform(0.983, 1.017, n),
         ozone_du=rng.uniform(OZONE_NODES_DU[0], OZONE_NODES_DU[-1], n),
         pressure_hpa=rng.uniform(PRESSURE_NODES_HPA[0], PRESSURE_NODES_HPA[-1], n),
@@ -57,6 +59,22 @@ def test_table_within_one_percent_of_full_solve(seed):
     assert max(worst.values()) < 0.01, worst  # UVI is 40 x erythema: same relative error
 
 
+# Civil twilight (sun 0-6 degrees below the horizon, no direct beam): the skylight's
+# zenith dependence has corners where the grazing rays' lowest points pass layer
+# boundaries, which the four-node interpolation rounds off. Measured, 400 records: the
+# UV Index within 2.2 %, UVA and plant growth 1.1 %, the UVB-weighted spectra (plant
+# damage, DNA damage, previtamin D3, UVB, actinic) within 10 %, where they are below
+# 1e-5 of their overhead-sun value.
+def test_table_in_twilight_follows_the_full_solve():
+    records = random_records(200, 3, zenith_range_deg=(90.0, ZENITH_NODES_DEG[-1]))
+    full = effective(clear_sky.spectral_irradiance(**records, method="direct"))
+    table = effective(clear_sky.spectral_irradiance(**records, method="table"))
+    relative = dict(zip(SPECTRA, np.abs(table / full - 1.0).max(axis=0)))
+    for name in ("erythema", "uva", "plant_growth"):
+        assert relative[name] < 0.025, relative
+    assert max(relative.values()) < 0.10, relative
+
+
 def test_spectral_albedo_and_diffuse_split_follow_the_full_solve():
     records = random_records(40, 7)
     records["surface_albedo"] = np.linspace(0.05, 0.9, WAVELENGTH_NM.size)[None, :] * np.ones((40, 1))
@@ -73,7 +91,7 @@ def test_spectral_albedo_and_diffuse_split_follow_the_full_solve():
 def test_direct_beam_ozone_dependence_is_exact():
     # Ozone does not scatter: off the ozone nodes the beam is still the full solve's.
     zenith = ZENITH_NODES_DEG[[3, 20, 38]]
-    args = dict(solar_zenith_deg=zenith, earth_sun_distance_au=1.0,
+    args = dict(true_zenith_deg=zenith, earth_sun_distance_au=1.0,
                 ozone_du=np.array([333.3, 111.1, 654.3]), pressure_hpa=PRESSURE_NODES_HPA[2],
                 surface_albedo=0.1, aod_550=AOD_NODES[3], angstrom_exponent=DEFAULT_AEROSOL_TYPE[0],
                 single_scattering_albedo=DEFAULT_AEROSOL_TYPE[1], asymmetry_factor=DEFAULT_AEROSOL_TYPE[2])
@@ -114,10 +132,10 @@ def test_interpolation_matches_scipy_regular_grid_interpolator():
 
 
 def test_auto_uses_the_full_solve_outside_the_table_and_zeros_at_night():
-    zenith = np.array([30.0, 30.0, 30.0, 30.0, 95.0, 30.0])
+    zenith = np.array([30.0, 30.0, 30.0, 30.0, 97.0, 30.0])
     ozone = np.array([300.0, 300.0, 800.0, 300.0, 300.0, 300.0])
     ssa = np.array([DEFAULT_AEROSOL_TYPE[1]] * 5 + [0.8])
-    args = dict(solar_zenith_deg=zenith, earth_sun_distance_au=1.0, ozone_du=ozone,
+    args = dict(true_zenith_deg=zenith, earth_sun_distance_au=1.0, ozone_du=ozone,
                 pressure_hpa=np.array([1000.0, 1000.0, 1000.0, 450.0, 1000.0, 1000.0]),
                 surface_albedo=0.05, aod_550=0.2,
                 angstrom_exponent=DEFAULT_AEROSOL_TYPE[0], single_scattering_albedo=ssa,
@@ -132,7 +150,7 @@ def test_auto_uses_the_full_solve_outside_the_table_and_zeros_at_night():
 
 
 def test_table_method_names_the_record_and_field_it_cannot_serve():
-    args = dict(solar_zenith_deg=np.array([20.0, 40.0]), earth_sun_distance_au=1.0,
+    args = dict(true_zenith_deg=np.array([20.0, 40.0]), earth_sun_distance_au=1.0,
                 ozone_du=np.array([300.0, 300.0]), pressure_hpa=np.array([1000.0, 400.0]),
                 surface_albedo=0.05, aod_550=0.1, angstrom_exponent=DEFAULT_AEROSOL_TYPE[0],
                 single_scattering_albedo=DEFAULT_AEROSOL_TYPE[1],

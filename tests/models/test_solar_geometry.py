@@ -136,6 +136,8 @@ def test_matches_pvlib_spa_to_rounding_on_a_wide_sample():
     radius = pvlib.spa.solar_position_numpy(t, lat, lon, elev, 1000.0, 15.0, 67.0,
                                             0.5667, 0, esd=True)[0]
     np.testing.assert_allclose(ours.zenith_deg, reference[0], atol=1e-8)
+    # The true (airless) zenith is SPA's topocentric zenith without refraction.
+    np.testing.assert_allclose(ours.true_zenith_deg, reference[1], atol=1e-8)
     azimuth_gap = (ours.azimuth_deg - reference[4] + 180.0) % 360.0 - 180.0
     np.testing.assert_allclose(azimuth_gap, 0.0, atol=1e-6)
     np.testing.assert_allclose(ours.earth_sun_distance_au, radius, atol=1e-12)

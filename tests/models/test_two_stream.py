@@ -25,6 +25,8 @@ from uvdose.models.two_stream import surface_irradiance, transfer_components
 
 nanodisort = pytest.importorskip("nanodisort")
 
+from tests.models import disort_reference  # noqa: E402  (after the skip)
+
 N_LAYERS = 20
 TOP_KM = 60.0
 N_STREAMS = 16
@@ -66,29 +68,9 @@ def synthetic_atmosphere(wavelength_nm, aod_550=0.2, ozone_du=300.0):
 
 
 def disort_fluxes(tau, ssa, moments, mu0, albedo):
-    """DISORT direct and diffuse downward flux at the surface, per unit normal beam."""
-    n_layers, n_wavelengths = tau.shape
-    solver = nanodisort.BatchSolver(nthreads=1)
-    solver.nstr = N_STREAMS
-    solver.nlyr = n_layers
-    solver.nmom = N_STREAMS
-    solver.ntau = 1
-    solver.usrtau = True
-    solver.usrang = False
-    solver.lamber = True
-    solver.onlyfl = True
-    solver.quiet = True
-    solver.umu0 = float(mu0)
-    solver.phi0 = 0.0
-    solver.allocate(n_wavelengths)
-    solver.set_utau_batched(tau.sum(axis=0)[:, None].copy())
-    solver.set_dtauc(np.ascontiguousarray(tau.T))
-    solver.set_ssalb(np.ascontiguousarray(ssa.T))
-    solver.set_pmom(np.asfortranarray(np.transpose(moments, (2, 0, 1))))
-    solver.set_fbeam(np.ones(n_wavelengths))
-    solver.set_albedo(np.full(n_wavelengths, float(albedo)))
-    solver.solve()
-    return np.asarray(solver.rfldir)[:, -1], np.asarray(solver.rfldn)[:, -1]
+    """DISORT direct and diffuse downward flux at the surface, per unit normal beam
+    (plane-parallel, ``N_STREAMS`` streams; tests/models/disort_reference.py)."""
+    return disort_reference.disort_fluxes(tau, ssa, moments, mu0, albedo, streams=N_STREAMS)
 
 
 def ours(tau, ssa, g, mu0, albedo):
@@ -274,18 +256,7 @@ def test_bad_shapes_and_values_are_rejected(solver):
 def production_layers(aod_550):
     """The engine's own 27 layers (models.optics) and DISORT phase moments for them:
     Rayleigh (moment 2 = 0.1) plus Henyey-Greenstein aerosol, split by the layer g."""
-    from uvdose.models import optics
-
-    g_aerosol = optics.DEFAULT_ASYMMETRY_FACTOR
-    layer = optics.layer_optics(np.array([300.0]), 1013.25, aod_550,
-                                optics.DEFAULT_ANGSTROM_EXPONENT,
-                                optics.DEFAULT_SINGLE_SCATTERING_ALBEDO, g_aerosol)
-    tau, ssa, g = layer.tau[0], layer.ssa[0], layer.g[0]
-    aerosol_share = g / g_aerosol  # of the layer's scattering
-    moments = aerosol_share[..., None] * g_aerosol ** np.arange(N_STREAMS + 1)
-    moments[..., 2] += 0.1 * (1.0 - aerosol_share)
-    moments[..., 0] = 1.0
-    return tau, ssa, g, moments
+    return disort_reference.engine_layers(300.0, 1013.25, aod_550, streams=N_STREAMS)
 
 
 # Measured, AOD 0.1, albedo 0.05, erythema / UVB / UVA: 0 deg +0.6/+0.6/+0.7 %,

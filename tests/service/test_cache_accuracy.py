@@ -8,10 +8,10 @@ and the hours of the day, with random optional inputs:
 - each effective irradiance, and the UVB and UVA integrals, within max(3 % of the exact
   value, 0.5 % of its value for a high sun: 2.8° zenith, 300 DU, sea level, default
   aerosol — the same scale as 0.05 UVI is of a UVI near 12) while the sun is more than
-  1° above the horizon. Within 1° of the horizon, within 3 % of that high-sun value: the
-  engine returns zeros once the sun is down, so a record and its cell centre on either
-  side of sunrise differ by the twilight value (UVA up to about 1.4 W m⁻², 2.3 % of
-  high sun, under thick aerosol).
+  1° above the horizon. Within 1° of the horizon and below it, within 3 % of that
+  high-sun value: there the irradiance is small and changes fastest in relative terms
+  (the twilight sky fades to zero 6° below the horizon), so a record and its cell centre
+  a minute apart differ by a large share of a small value.
 
 Both bounds are our own (common practice, no source): well inside the spread of clear-sky
 models against measurement, and the absolute floor keeps night and twilight from being
