@@ -30,7 +30,7 @@ from typing import Callable, Mapping, Sequence
 
 import numpy as np
 
-from uvdose.models import engine, uncertainty
+from uvdose.models import engine, uncertainty, weather_series
 from uvdose.models.record_errors import check_records
 from uvdose.models.solar_geometry import CIVIL_TWILIGHT_ZENITH_DEG, sunrise_transit_sunset
 
@@ -168,15 +168,24 @@ def dose_relative_sigma(result: Columns, owner: np.ndarray, weight_s: np.ndarray
 def integrate(nodes: Nodes, per_window: Mapping[str, np.ndarray], n_windows: int,
               evaluate: Evaluator, skip: np.ndarray | None = None,
               per_node: Mapping[str, np.ndarray] | None = None,
-              spectra: Sequence[str] | None = None) -> dict[str, object]:
+              spectra: Sequence[str] | None = None,
+              series: weather_series.SeriesWeights | None = None) -> dict[str, object]:
     """Dose per window from the evaluator at the nodes.
 
     ``per_window`` columns (K,) are repeated onto the nodes; ``per_node`` columns (M,)
     are used as they are; ``skip`` (M,) marks nodes known to be zero (not evaluated).
     ``spectra`` names the doses to return (default: whatever the evaluator returns).
+    ``series`` (``models.weather_series.series_weights``) replaces the node weights by the
+    product-integration weights of a weather series, scales the rates at the nodes by the
+    factor in force there (peak UV Index, final rates) and gives each node of a series
+    window the clouds uncertainty of the cloud source in force there; the windows it
+    concerns must have been given no cloud factor of their own (the engine runs under
+    clear sky there).
     Returns ``dose_j_m2`` {name: (K,)}, ``peak_uv_index`` (K,), ``final_rate_w_m2``
     {name: (K,)} (the rate at each window's end node), ``relative_sigma`` {name:
-    {component: (K,)}} (:func:`dose_relative_sigma`) and ``samples`` (evaluated nodes).
+    {component: (K,)}} (:func:`dose_relative_sigma`), ``samples`` (evaluated nodes) and,
+    with ``series``, ``unclouded_dose_j_m2`` {name: (K,)} (the same samples with the
+    nodes' own weights: the dose without the series' clouds).
     """
     use = np.ones(nodes.window.size, bool) if skip is None else ~skip
     columns = {k: np.asarray(v)[nodes.window[use]] for k, v in per_window.items()}
@@ -186,35 +195,87 @@ def integrate(nodes: Nodes, per_window: Mapping[str, np.ndarray], n_windows: int
     result = evaluate_in_chunks(evaluate, columns)
     owner = nodes.window[use]
     weight = nodes.weight_s[use]
+    cloud_weight = weight if series is None else series.weight_s[use]
+    node_cmf = np.ones(owner.size) if series is None else series.node_cmf[use]
     end_node = np.cumsum(np.bincount(nodes.window, minlength=n_windows)) - 1
-    doses, final = {}, {}
-    for name in (engine.effective_names(result) if spectra is None else spectra):
+    doses, final, unclouded = {}, {}, {}
+    names = engine.effective_names(result) if spectra is None else list(spectra)
+    for name in names:
         rate = result.get(engine.effective_column(name), np.zeros(owner.size))
-        doses[name] = np.bincount(owner, weights=weight * rate, minlength=n_windows)
+        doses[name] = np.bincount(owner, weights=cloud_weight * rate, minlength=n_windows)
+        if series is not None:
+            unclouded[name] = np.bincount(owner, weights=weight * rate, minlength=n_windows)
         at_nodes = np.zeros(nodes.window.size)
-        at_nodes[use] = rate
+        at_nodes[use] = rate * node_cmf
         final[name] = at_nodes[end_node] if n_windows else np.zeros(0)
     peak = np.zeros(n_windows)
     if "uv_index" in result and owner.size:
-        np.maximum.at(peak, owner, result["uv_index"])
+        np.maximum.at(peak, owner, result["uv_index"] * node_cmf)
     result.setdefault("time_unix_s", columns["time_unix_s"])
-    sigma = dose_relative_sigma(result, owner, weight, list(doses), n_windows)
-    return {"dose_j_m2": doses, "peak_uv_index": peak, "final_rate_w_m2": final, "relative_sigma": sigma,
-            "samples": int(owner.size), "result": result, "owner": owner, "weight_s": weight}
+    if series is not None:
+        _series_cloud_sigma(result, series, use, ["uv_index", *names])
+    sigma = dose_relative_sigma(result, owner, cloud_weight, list(doses), n_windows)
+    out = {"dose_j_m2": doses, "peak_uv_index": peak, "final_rate_w_m2": final, "relative_sigma": sigma,
+           "samples": int(owner.size), "result": result, "owner": owner, "weight_s": weight}
+    if series is not None:
+        out["unclouded_dose_j_m2"] = unclouded
+    return out
+
+
+def _series_cloud_sigma(result: Columns, series: weather_series.SeriesWeights, use: np.ndarray,
+                        quantities: Sequence[str]) -> None:
+    """At the nodes of series windows, the clouds component of each quantity's sigma from
+    the cloud sources actually used there: the series' for the part of the node's weight
+    its readings give, the fallback's for the rest (``models.uncertainty.cloud_relative_sigma``),
+    so that weight × sigma is the node's cloud error. The engine ran those nodes under the
+    clear sky, with no cloud error of its own."""
+    on = series.on_series[use]
+    if not on.any():
+        return
+    pick = np.flatnonzero(use)[on]
+    error = (series.series_part_s[pick] * uncertainty.cloud_relative_sigma(series.series_source[pick],
+                                                                         series.series_mean_cmf[pick])
+             + series.fallback_part_s[pick] * uncertainty.cloud_relative_sigma(series.fallback_source[pick],
+                                                                             series.fallback_cmf[pick]))
+    weight = series.weight_s[pick]
+    sigma = np.where(weight != 0.0, error / np.where(weight != 0.0, weight, 1.0), 0.0)
+    for quantity in quantities:
+        key, model = engine.sigma_column(quantity, "clouds"), engine.sigma_column(quantity, "model")
+        if key in result and model in result:
+            column = np.array(result[key], dtype=float)
+            column[on] = np.where(np.asarray(result[model])[on] > 0.0, sigma, 0.0)  # zero where unlit
+            result[key] = column
 
 
 def window_doses(per_window: Mapping[str, np.ndarray], start_unix_s, end_unix_s,
                  evaluate: Evaluator, step_s: float = DEFAULT_WINDOW_STEP_S,
-                 spectra: Sequence[str] | None = None) -> dict[str, object]:
+                 spectra: Sequence[str] | None = None,
+                 cloud_steps: weather_series.CloudSteps | None = None) -> dict[str, object]:
     """Doses over K time windows, each at its own place and conditions.
 
-    ``per_window``: Conditions columns (K,) except ``time_unix_s``. See :func:`integrate`
-    for the result.
+    ``per_window``: Conditions columns (K,) except ``time_unix_s``. ``cloud_steps``
+    (``models.weather_series.cloud_steps``, records = windows) gives windows a weather
+    series: its factor acts over each reading's interval (product integration on the
+    trapezoid's hat functions), the window's own ``cloud_modification_factor`` (else
+    clear sky; its ``cloud_source``) where the series has no reading. See
+    :func:`integrate` for the result; with ``cloud_steps`` also ``series_covered_s``
+    (K,), the seconds covered by readings.
     """
     start = np.atleast_1d(np.asarray(start_unix_s, dtype=float))
-    nodes = trapezoid_nodes(start, end_unix_s, step_s)
-    out = integrate(nodes, per_window, start.size, evaluate, spectra=spectra)
-    out.pop("result"), out.pop("owner"), out.pop("weight_s")
+    end = np.atleast_1d(np.asarray(end_unix_s, dtype=float))
+    nodes = trapezoid_nodes(start, end, step_s)
+    series = None
+    if cloud_steps is not None:
+        given = np.asarray(per_window.get("cloud_modification_factor", np.full(start.size, np.nan)), dtype=float)
+        series = weather_series.series_weights(cloud_steps, np.arange(start.size), start, end, nodes.time_unix_s,
+                                               nodes.window, nodes.weight_s, given, "trapezoid",
+                                               fallback_source=per_window.get("cloud_source"))
+        per_window = dict(per_window)
+        per_window["cloud_modification_factor"] = np.where(series.series, np.nan, given)
+    out = integrate(nodes, per_window, start.size, evaluate, spectra=spectra, series=series)
+    out.pop("result"), out.pop("owner"), out.pop("weight_s"), out.pop("unclouded_dose_j_m2", None)
+    if series is not None:
+        out["series_covered_s"] = series.covered_s
     return out
 
 
@@ -246,6 +307,9 @@ class FieldSeason:
     samples: int
     daily_relative_sigma: dict[str, dict[str, np.ndarray]] = field(default_factory=dict)
     season_relative_sigma: dict[str, dict[str, np.ndarray]] = field(default_factory=dict)
+    series_share_of_daylight: np.ndarray | None = None
+    """(F, D) share of each daylight period covered by weather-series readings (0 on days
+    without daylight or readings); ``None`` when no series was given."""
 
 
 def _climatological_ozone(latitude_deg, longitude_deg, time_unix_s):
@@ -258,7 +322,8 @@ def field_season(per_field: Mapping[str, np.ndarray], day_unix_s, evaluate: Eval
                  ozone_du=None, cloud_modification_factor=None, cloud_source=None,
                  step_s: float = DEFAULT_DAY_STEP_S, reference_ozone=_climatological_ozone,
                  spectra: Sequence[str] | None = None, day_quadrature: str = "gauss_legendre",
-                 gauss_nodes: int = DEFAULT_GAUSS_NODES) -> FieldSeason:
+                 gauss_nodes: int = DEFAULT_GAUSS_NODES,
+                 cloud_steps: weather_series.CloudSteps | None = None) -> FieldSeason:
     """Daily doses from civil dawn to dusk for F fields on D days, with season sums.
 
     ``per_field``: Conditions columns (F,) (at least latitude_deg, longitude_deg).
@@ -273,6 +338,11 @@ def field_season(per_field: Mapping[str, np.ndarray], day_unix_s, evaluate: Eval
     The clear-sky reference reuses the first pass wherever that pass already used
     climatological ozone (reference = dose / CMF); only the remaining field-days are
     evaluated again with ``reference_ozone`` and CMF 1.
+    ``cloud_steps`` (``models.weather_series.cloud_steps``, records = fields) gives fields
+    a weather series: on every day of such a field the engine runs under clear sky and
+    the series' factor enters through product-integration weights
+    (``models.weather_series.series_weights``), the day's ``cloud_modification_factor``
+    (else clear sky) and ``cloud_source`` where the series has no reading.
     """
     days = np.atleast_1d(np.asarray(day_unix_s, dtype=float))
     lat = np.asarray(per_field["latitude_deg"], dtype=float)
@@ -310,7 +380,13 @@ def field_season(per_field: Mapping[str, np.ndarray], day_unix_s, evaluate: Eval
     per_window["cloud_modification_factor"] = cmf.ravel()
     if cloud_source is not None:
         per_window["cloud_source"] = np.asarray(cloud_source, dtype=object).reshape(-1)
-    first = integrate(nodes, per_window, n_fields * n_days, evaluate, skip=skip, spectra=spectra)
+    series = None
+    if cloud_steps is not None:
+        series = weather_series.series_weights(
+            cloud_steps, fields_of, start, end, nodes.time_unix_s, nodes.window, nodes.weight_s, cmf.ravel(),
+            day_quadrature, gauss_nodes=gauss_nodes, fallback_source=per_window.get("cloud_source"))
+        per_window["cloud_modification_factor"] = np.where(series.series, np.nan, cmf.ravel())
+    first = integrate(nodes, per_window, n_fields * n_days, evaluate, skip=skip, spectra=spectra, series=series)
     spectra = list(first["dose_j_m2"])
     daily = {k: v.reshape(shape) for k, v in first["dose_j_m2"].items()}
 
@@ -319,10 +395,13 @@ def field_season(per_field: Mapping[str, np.ndarray], day_unix_s, evaluate: Eval
     if "ozone_source" in first["result"]:
         not_climatology = first["result"]["ozone_source"] != "climatology"
         used_climatology[np.unique(first["owner"][not_climatology])] = False
-    cmf_flat = np.where(np.isnan(cmf.ravel()), 1.0, cmf.ravel())
+    # The factor each field-day was evaluated under: its own, or 1 under a weather series.
+    cmf_flat = np.where(np.isnan(per_window["cloud_modification_factor"]), 1.0,
+                        per_window["cloud_modification_factor"])
+    evaluated = first.get("unclouded_dose_j_m2", first["dose_j_m2"])
     reusable = used_climatology & np.isnan(ozone.ravel()) & (cmf_flat > 0.0)
     reference = {k: np.where(reusable, v / np.where(reusable, cmf_flat, 1.0), 0.0)
-                 for k, v in first["dose_j_m2"].items()}
+                 for k, v in evaluated.items()}
     again = ~reusable[nodes.window] & ~skip
     if again.any():
         second_window = dict(per_window)
@@ -349,4 +428,12 @@ def field_season(per_field: Mapping[str, np.ndarray], day_unix_s, evaluate: Eval
         season_dose_j_m2={k: np.cumsum(v, axis=1) for k, v in daily.items()},
         clear_sky_reference_j_m2=reference, ratio_to_clear_sky=ratio,
         peak_uv_index=first["peak_uv_index"].reshape(shape), samples=first["samples"],
-        daily_relative_sigma=daily_sigma, season_relative_sigma=season_sigma)
+        daily_relative_sigma=daily_sigma, season_relative_sigma=season_sigma,
+        series_share_of_daylight=None if series is None else _share(series.covered_s, end - start, shape))
+
+
+def _share(covered_s: np.ndarray, length_s: np.ndarray, shape) -> np.ndarray:
+    """Covered seconds over period lengths, 0 for empty periods, reshaped."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(length_s > 0.0, np.minimum(covered_s / np.where(length_s > 0.0, length_s, 1.0), 1.0),
+                        0.0).reshape(shape)

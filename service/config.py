@@ -117,6 +117,9 @@ SETTINGS: tuple[Setting, ...] = (
     _same("UVDOSE_MAX_FULL_SOLVE_RECORDS", 1_000, _whole_number(1),
           "Most records (after the cache, and counting dose samples) one request may send to "
           "the full radiative-transfer solve, about 100 records/s per core; more get a 413 problem."),
+    _same("UVDOSE_MAX_WEATHER_READINGS", 200_000, _whole_number(1),
+          "Most weather-series readings (the `weather` table of a field or window dose request) "
+          "in one request; more get a 413 problem."),
     Setting("UVDOSE_MAX_BODY_BYTES", "MAX_CONTENT_LENGTH", 16 * 1024 * 1024, _whole_number(1),
             "Largest request body in bytes; larger bodies get a 413 problem."),
     _same("UVDOSE_MAX_ERRORS_LISTED", 10_000, _whole_number(1),

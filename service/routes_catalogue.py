@@ -67,7 +67,8 @@ def catalogue():
         "record_fields": record_fields(),
         "limits": {"max_records": current_app.config["UVDOSE_MAX_RECORDS"],
                    "max_body_bytes": current_app.config["MAX_CONTENT_LENGTH"],
-                   "max_full_solve_records": current_app.config["UVDOSE_MAX_FULL_SOLVE_RECORDS"]},
+                   "max_full_solve_records": current_app.config["UVDOSE_MAX_FULL_SOLVE_RECORDS"],
+                   "max_weather_readings": current_app.config["UVDOSE_MAX_WEATHER_READINGS"]},
     })
     # Behind API keys the answer is for key holders only: no shared cache may keep it.
     return cacheable(response, shared=not current_app.extensions["uvdose_auth"].enabled)

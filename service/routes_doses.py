@@ -70,6 +70,14 @@ from uvdose.service.record_fields import (
     time_span,
 )
 from uvdose.service.time_text import iso_utc
+from uvdose.service.weather_series_table import (
+    TIME_STAMPS_OPTION,
+    FieldWeatherSchema,
+    WindowWeatherSchema,
+    provenance,
+    read_weather,
+    source_used,
+)
 from uvdose.service.wire_formats import (
     given_columns,
     json_response,
@@ -204,8 +212,33 @@ class WindowRecordSchema(ConditionsRecordSchema):
     )
 
 
+class WindowOptionsSchema(DoseOptionsSchema):
+    weather = fields.Raw(error_messages={"null": "must not be null"})  # read as WindowWeatherSchema records
+    weather_time_stamps = TIME_STAMPS_OPTION
+
+
 _WINDOW_RECORDS = WindowRecordSchema()
-_WINDOW_OPTIONS = DoseOptionsSchema()
+_WINDOW_OPTIONS = WindowOptionsSchema()
+_WINDOW_WEATHER = WindowWeatherSchema()
+_WINDOW_CLOUD_WIRES = (("cloud_modification_factor", "cloud_factor"), ("cloud_cover_fraction", "cloud_cover"),
+                       ("cloud_cover_oktas", "cloud_oktas"))
+
+
+def _cloud_input_names(columns: Mapping[str, np.ndarray], n: int) -> np.ndarray:
+    """(n,) the wire name of the cloud input each record gives, ``clear_sky`` for none."""
+    out = np.full(n, "clear_sky", dtype=object)
+    for column, wire in _WINDOW_CLOUD_WIRES:
+        if column in columns:
+            out[~np.isnan(columns[column])] = wire
+    return out
+
+
+def _weather_steps(options: Mapping[str, Any], schema, ids, places: Mapping[str, np.ndarray]):
+    """The records' weather series (``None`` when the request has no ``weather`` table)."""
+    if options.get("weather") is None:
+        return None
+    return read_weather(options["weather"], schema, ids, places,
+                        current_app.config["UVDOSE_MAX_WEATHER_READINGS"], options.get("weather_time_stamps"))
 
 
 def _cmf_columns(columns: Mapping[str, np.ndarray], ids) -> np.ndarray:
@@ -231,23 +264,28 @@ def windows() -> Response:
                        for i in np.flatnonzero(bad)])
     source = clouds.cloud_source(cols.get("cloud_modification_factor"), cols.get("cloud_cover_fraction"),
                                  cols.get("cloud_cover_oktas"))
+    outside = _cloud_input_names(cols, len(batch))
     cols["cloud_modification_factor"] = np.broadcast_to(_cmf_columns(cols, batch.ids), start.shape).copy()
     cols["cloud_source"] = np.broadcast_to(source, start.shape).copy()
     cols.pop("cloud_cover_fraction", None), cols.pop("cloud_cover_oktas", None)
+    steps = _weather_steps(options, _WINDOW_WEATHER, batch.ids, cols)
     spectra = list(options.get("spectra") or DEFAULT_WINDOW_SPECTRA)
     step_s = float(options.get("step_s") or dose.DEFAULT_WINDOW_STEP_S)
     transmittance, label = _transmittance(options)
     evaluate = engine_gateway.current(options.get("ozone_climatology")).dose_evaluator(spectra, transmittance, label, "windows")
     with records_named(by_schema(_WINDOW_RECORDS, batch.ids), len(batch)):
-        out = dose.window_doses(cols, start, end, evaluate, step_s=step_s, spectra=spectra)
+        out = dose.window_doses(cols, start, end, evaluate, step_s=step_s, spectra=spectra, cloud_steps=steps)
     metrics.count_records(WINDOWS_ROUTE, len(batch))
+    share = _window_share(steps, out, length)
     doses = out["dose_j_m2"]
     columns: dict[str, list] = {
         "id": batch.ids.tolist(), "start": iso_utc(start), "end": iso_utc(end),
         "dose_j_m2": rows_from_columns({k: np.asarray(v).tolist() for k, v in doses.items()}),
         "peak_uv_index": np.asarray(out["peak_uv_index"]).tolist(),
         "cloud_factor": [None if np.isnan(x) else x for x in cols["cloud_modification_factor"].tolist()],
-        "uncertainty": _uncertainty_objects(out["relative_sigma"], len(batch), cols["cloud_source"].tolist()),
+        "uncertainty": _uncertainty_objects(out["relative_sigma"], len(batch),
+                                            source_used(steps, share, cols["cloud_source"]).tolist()),
+        "clouds": provenance(np.full(len(batch), "", dtype=object) if steps is None else steps.kind, share, outside),
     }
     columns.update(_exposure_rows(doses, out["final_rate_w_m2"]))
     if "icnirp_limit_fraction" in columns:
@@ -257,6 +295,15 @@ def windows() -> Response:
     body["samples"] = out["samples"]
     body["results"] = results
     return json_response(body)
+
+
+def _window_share(steps, out: Mapping[str, Any], length_s: np.ndarray) -> np.ndarray:
+    """(K,) the share of each window covered by weather-series readings."""
+    if steps is None:
+        return np.zeros(length_s.size)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        share = np.where(length_s > 0, out["series_covered_s"] / np.where(length_s > 0, length_s, 1.0), 0.0)
+    return np.minimum(share, 1.0)
 
 
 # -- fields ---------------------------------------------------------------------------
@@ -288,11 +335,16 @@ class FieldOptionsSchema(DoseOptionsSchema):
     first_day = fields.Date(required=True, error_messages={"invalid": "must be a date YYYY-MM-DD"})
     last_day = fields.Date(required=True, error_messages={"invalid": "must be a date YYYY-MM-DD"})
     daily = fields.Raw(error_messages={"null": "must not be null"})  # read as DailyEntrySchema records
+    weather = fields.Raw(error_messages={"null": "must not be null"})  # read as FieldWeatherSchema records
+    weather_time_stamps = TIME_STAMPS_OPTION
 
 
 _FIELD_RECORDS = FieldRecordSchema()
 _FIELD_OPTIONS = FieldOptionsSchema()
 _DAILY_ENTRIES = DailyEntrySchema()
+_FIELD_WEATHER = FieldWeatherSchema()
+_DAILY_CLOUD_WIRES = {"factor": "cloud_factor", "cover": "cloud_oktas", "none": "clear_sky"}
+"""The wire name of the daily table's cloud input of each cloud source kind."""
 
 
 def _daily_table(daily: Any, n_fields: int, n_days: int):
@@ -372,6 +424,7 @@ def field_doses() -> Response:
         raise _options_problem("first_day", "the season must lie within 1950–2100")
     days = (first + np.arange(n_days)).astype("datetime64[s]").astype(np.int64).astype(float)
     ozone, cmf, cloud_source = _daily_inputs(options.get("daily"), len(batch), first, n_days)
+    steps = _weather_steps(options, _FIELD_WEATHER, batch.ids, batch.columns)
     spectra = list(options.get("spectra") or DEFAULT_FIELD_SPECTRA)
     # Gauss–Legendre over each daylight period unless the client asks for a step.
     step_s = options.get("step_s")
@@ -383,7 +436,7 @@ def field_doses() -> Response:
     # Every input was validated above: an error from here on is the service's, not the client's.
     season = dose.field_season(batch.columns, days, evaluate, ozone_du=ozone,
                                cloud_modification_factor=cmf, cloud_source=cloud_source, spectra=spectra,
-                               reference_ozone=gateway.reference_ozone, **quadrature)
+                               reference_ozone=gateway.reference_ozone, cloud_steps=steps, **quadrature)
     metrics.count_records(FIELDS_ROUTE, len(batch))
 
     dates = [str(d) for d in first + np.arange(n_days)]
@@ -396,14 +449,18 @@ def field_doses() -> Response:
     sunset = [iso_utc(row) for row in season.sunset_unix_s]
     states = state_names[season.sun_state + 1].tolist()
     peak = season.peak_uv_index.tolist()
-    sources = cloud_source.tolist()
+    share = np.zeros((len(batch), n_days)) if steps is None else season.series_share_of_daylight
+    sources = source_used(steps, share, cloud_source).tolist()
+    outside = np.vectorize(_DAILY_CLOUD_WIRES.get, otypes=[object])(cloud_source)
+    day_clouds = provenance(np.full((len(batch), 1), "", dtype=object) if steps is None else steps.kind[:, None],
+                            share, outside)
     for f, record_id in enumerate(batch.ids.tolist()):
         day_rows = rows_from_columns({
             "day": dates, "sunrise": sunrise[f], "sunset": sunset[f], "sun": states[f],
             "dose_j_m2": rows_from_columns({k: v[f] for k, v in daily_lists.items()}),
             "season_total_j_m2": rows_from_columns({k: v[f] for k, v in season_lists.items()}),
             "ratio_to_clear_sky": rows_from_columns({k: v[f] for k, v in ratio_lists.items()}),
-            "peak_uv_index": peak[f],
+            "peak_uv_index": peak[f], "clouds": day_clouds[f],
             "uncertainty": [uncertainty_fields.dose_object(season.daily_relative_sigma, (f, d), sources[f][d])
                             for d in range(n_days)],
             "season_total_uncertainty": [uncertainty_fields.dose_object(season.season_relative_sigma, (f, d))

@@ -195,11 +195,14 @@ def _record_schemas():
 def _column_schemas():
     from uvdose.service import routes_doses, routes_ozone
     from uvdose.service.irradiance_batch import IrradianceRecordSchema
+    from uvdose.service.weather_series_table import FieldWeatherSchema, WindowWeatherSchema
 
     return [
         ("IrradianceRecordColumns", IrradianceRecordSchema),
         ("OzoneRecordColumns", routes_ozone.OzoneRecordSchema),
         ("DailyTable", routes_doses.DailyEntrySchema),
+        ("FieldWeatherTable", FieldWeatherSchema),
+        ("WindowWeatherTable", WindowWeatherSchema),
     ]
 
 
@@ -274,6 +277,9 @@ def test_array_limits_are_the_service_limits(spec):
         assert {column["maxItems"] for column in schemas[name]["properties"].values()} == {max_records}, name
     assert {column["maxItems"] for column in schemas["DailyTable"]["properties"].values()} == {
         max_records * routes_doses.MAX_SEASON_DAYS}
+    max_readings = settings_from_environment({})["UVDOSE_MAX_WEATHER_READINGS"]
+    for name in ("FieldWeatherTable", "WindowWeatherTable"):
+        assert {column["maxItems"] for column in schemas[name]["properties"].values()} == {max_readings}, name
     points = routes_doses.MAX_ROUTE_POINTS
     assert schemas["PointRoute"]["properties"]["points"]["maxItems"] == points
     assert schemas["RouteGeometry"]["properties"]["coordinates"]["maxItems"] == points

@@ -14,9 +14,10 @@ from uvdose.service.routes_doses import (
 )
 from uvdose.service.routes_ozone import OzoneRecordSchema
 from uvdose.service.time_text import parse_iso_date, unix_seconds_of_canonical_dates
+from uvdose.service.weather_series_table import FieldWeatherSchema, WindowWeatherSchema
 
 SCHEMAS = [IrradianceRecordSchema, WindowRecordSchema, FieldRecordSchema, DailyEntrySchema,
-           RoutePointSchema, RouteConditionsSchema, OzoneRecordSchema]
+           RoutePointSchema, RouteConditionsSchema, OzoneRecordSchema, FieldWeatherSchema, WindowWeatherSchema]
 
 
 def _pool(rule):
