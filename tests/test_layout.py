@@ -121,3 +121,12 @@ def test_no_models_module_reads_the_environment():
     readers = sorted(str(path.relative_to(REPO)) for path in (REPO / "models").rglob("*.py")
                      if "os.environ" in (text := path.read_text(encoding="utf-8")) or "getenv" in text)
     assert readers == []
+
+
+def test_the_client_stands_alone():
+    """uvdose.client talks HTTP to the service and imports none of its modules (nor the
+    models), so integrators get the client without the server's code paths."""
+    for path in sorted((REPO / "service" / "client").glob("*.py")):
+        names = imported_names(path)
+        assert not {n for n in names if n.startswith(("uvdose.service", "uvdose.models", "flask"))}, path.name
+        assert all(n.startswith("uvdose.client") for n in names if n.startswith("uvdose")), path.name

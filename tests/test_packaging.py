@@ -25,7 +25,7 @@ from tests.service.conftest import free_loopback_port, stop, wait_until_answers
 
 REPO = Path(__file__).resolve().parents[1]
 BUILD_INPUTS = ("pyproject.toml", "README.md", "openapi.yaml", "models", "service")
-INTENDED_PACKAGES = {"uvdose/models", "uvdose/service", "uvdose/service/cache"}
+INTENDED_PACKAGES = {"uvdose/models", "uvdose/service", "uvdose/service/cache", "uvdose/client"}
 """Every folder of the wheel that holds Python modules (``uvdose`` itself is a namespace)."""
 
 
@@ -61,6 +61,9 @@ def test_the_wheel_installs_exactly_the_intended_packages(built):
     packages = {str(PurePosixPath(name).parent) for name in names if name.endswith(".py")}
     assert packages == INTENDED_PACKAGES | {"uvdose/models/data"}
     assert "uvdose/__init__.py" not in names
+    # The client's folder sits in service/ but installs only as uvdose.client.
+    assert not any(name.startswith("uvdose/service/client") for name in names)
+    assert "uvdose/client/api.py" in names
     assert not any(name.startswith(("uvdose/tests", "uvdose/deploy")) for name in names)
 
 
@@ -101,8 +104,9 @@ def installed(built, tmp_path_factory) -> Path:
 @pytest.mark.slow
 def test_after_install_the_namespace_imports_and_bare_names_do_not(installed, tmp_path):
     python = str(installed / "bin" / "python")
-    where = subprocess.run([python, "-c", "import uvdose.models, uvdose.service; "
-                            "print(uvdose.models.__file__); print(uvdose.service.__file__)"],
+    where = subprocess.run([python, "-c", "import uvdose.models, uvdose.service, uvdose.client; "
+                            "print(uvdose.models.__file__); print(uvdose.service.__file__); "
+                            "print(uvdose.client.__file__)"],
                            cwd=tmp_path, capture_output=True, text=True, check=True)
     for line in where.stdout.split():
         assert Path(line).is_relative_to(installed), line

@@ -23,18 +23,16 @@ from __future__ import annotations
 
 import argparse
 import json
-import os
-import socket
 import statistics
 import subprocess
 import sys
-import tempfile
-import time
 import urllib.request
 from datetime import datetime, timedelta, timezone
 from pathlib import Path
 
 import numpy as np
+import live_server  # noqa: E402  (this folder)
+from live_server import free_port  # noqa: E402
 from timing import timings  # noqa: E402  (this folder; see timing.py)
 
 REPO = Path(__file__).resolve().parents[2]
@@ -65,28 +63,9 @@ def p95(times: list[float]) -> float:
     return float(np.percentile(times, 95))
 
 
-def free_port() -> int:
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
-
-
 def start_server(port: int) -> subprocess.Popen:
-    env = {**os.environ, "UVDOSE_CACHE": "off", "UVDOSE_MAX_RECORDS": "100000",
-           "UVDOSE_MAX_BODY_BYTES": str(256 * 1024 * 1024),
-           "PROMETHEUS_MULTIPROC_DIR": tempfile.mkdtemp(prefix="uvdose-bench-")}
-    process = subprocess.Popen(
-        [sys.executable, "-m", "gunicorn", "--workers", "1", "--bind", f"127.0.0.1:{port}", "--timeout", "300",
-         "uvdose.service.app:create_app()"], cwd=REPO, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
-    deadline = time.monotonic() + 60
-    while time.monotonic() < deadline:
-        try:
-            with urllib.request.urlopen(f"http://127.0.0.1:{port}/livez", timeout=1):
-                return process
-        except OSError:
-            time.sleep(0.2)
-    process.terminate()
-    raise SystemExit("gunicorn did not start")
+    return live_server.start_server(port, workers=1, UVDOSE_CACHE="off", UVDOSE_MAX_RECORDS="100000",
+                                    UVDOSE_MAX_BODY_BYTES=str(256 * 1024 * 1024))
 
 
 def post(url: str, body: bytes) -> bytes:

@@ -197,11 +197,12 @@ def stop(process: subprocess.Popen) -> None:
 
 
 @contextlib.contextmanager
-def running_gunicorn(tmp_path_factory, app: str = "uvdose.service.app:create_app()", **settings: str):
-    """A real gunicorn (2 workers, multiprocess metrics) on a free loopback port serving
-    ``app``, with ``settings`` added to its environment; yields its base URL, stops it
-    afterwards."""
-    port = free_loopback_port()
+def running_gunicorn(tmp_path_factory, app: str = "uvdose.service.app:create_app()", port: int | None = None,
+                     **settings: str):
+    """A real gunicorn (2 workers, multiprocess metrics) on ``port`` (default: a free
+    loopback port) serving ``app``, with ``settings`` added to its environment; yields its
+    base URL, stops it afterwards."""
+    port = port or free_loopback_port()
     metrics_dir = tmp_path_factory.mktemp("prometheus")
     env = {**os.environ, "PROMETHEUS_MULTIPROC_DIR": str(metrics_dir), **settings}
     if "REDIS_URL" not in settings:
