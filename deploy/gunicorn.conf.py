@@ -8,6 +8,7 @@ the same way.
 """
 from uvdose.service import server as _server
 
+_server.pin_numeric_threads()  # before the app, and numpy, is imported
 _server.metrics_directory()
 globals().update(_server.gunicorn_settings())
 globals().update(_server.HOOKS)

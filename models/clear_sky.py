@@ -34,10 +34,11 @@ layer arrays; within a chunk everything is vectorised.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 
-from uvdose.models import atmosphere, irradiance_table, optics
+from uvdose.models import action_spectra, atmosphere, irradiance_table, optics
 from uvdose.models.four_stream import surface_irradiance
 from uvdose.models.solar_geometry import CIVIL_TWILIGHT_ZENITH_DEG
 from uvdose.models.spectral_grid import WAVELENGTH_NM, extraterrestrial_spectrum_w_m2_nm
@@ -65,6 +66,15 @@ class ClearSkySpectrum:
     def global_horizontal_w_m2_nm(self) -> np.ndarray:
         """Direct plus diffuse horizontal, (N, W)."""
         return self.direct_horizontal_w_m2_nm + self.diffuse_horizontal_w_m2_nm
+
+
+@lru_cache(maxsize=32)
+def grid_weights(names: tuple[str, ...]) -> np.ndarray:
+    """``models.action_spectra.weight_matrix`` of ``names`` on ``WAVELENGTH_NM``, (W, S),
+    computed once per set of names (read-only)."""
+    matrix = action_spectra.weight_matrix(names, WAVELENGTH_NM)
+    matrix.setflags(write=False)
+    return matrix
 
 
 def _as_record_arrays(true_zenith_deg, *values):
@@ -166,3 +176,27 @@ def spectral_irradiance(true_zenith_deg, earth_sun_distance_au, ozone_du, pressu
         direct, diffuse = irradiance_table.spectral_irradiance(*arguments, direct_solve=fallback)
         return ClearSkySpectrum(WAVELENGTH_NM, direct, diffuse)
     raise ValueError(f"unknown clear-sky method {method!r}; expected one of {METHODS}")
+
+
+def weighted_irradiance(true_zenith_deg, ozone_du, pressure_hpa, surface_albedo, aod_550,
+                        angstrom_exponent, single_scattering_albedo, asymmetry_factor,
+                        spectra, transmittance=None, method: str = "auto",
+                        full_solve_budget: FullSolveBudget | None = None):
+    """Weighted direct and diffuse horizontal irradiance at 1 AU, W m⁻².
+
+    ``spectra`` names S action spectra or bands of ``models.action_spectra``; each
+    integral weights the spectrum behind ``transmittance`` ((W,) on ``WAVELENGTH_NM``,
+    ``None`` for none). Returns ``(direct, diffuse, open_sky_erythema)``: (N, S), (N, S)
+    and the erythemal global irradiance without any filter (N,), computed the same way
+    whatever the filter (the UV Index does not depend on it). Other arguments and
+    ``method`` as in :func:`spectral_irradiance`.
+    """
+    sky = spectral_irradiance(true_zenith_deg, 1.0, ozone_du, pressure_hpa, surface_albedo,
+                              aod_550, angstrom_exponent, single_scattering_albedo,
+                              asymmetry_factor, method=method, full_solve_budget=full_solve_budget)
+    weights = grid_weights(tuple(spectra))
+    if transmittance is not None:
+        weights = weights * np.asarray(transmittance, dtype=np.float64)[:, None]
+    open_sky = sky.global_horizontal_w_m2_nm @ grid_weights(("erythema",))[:, 0]
+    return (sky.direct_horizontal_w_m2_nm @ weights, sky.diffuse_horizontal_w_m2_nm @ weights,
+            open_sky)

@@ -12,8 +12,9 @@ has fallen below 1e-4 of the high-sun value; the irradiance is continuous in tim
 Irradiance comes from an *evaluator*: a function from a dict of per-sample input
 columns (the names of ``models.engine.Conditions``) to a dict of result columns
 (``EngineResult.as_columns()`` names, e.g. ``engine.effective_column("erythema")``).
-:func:`engine_evaluator` wraps the engine; the service wraps that in its cache;
-tests pass synthetic ones. Samples are evaluated in chunks of bounded size.
+:func:`engine_evaluator` wraps the engine (the service hands it its cache as the
+engine's ``transfer_memo``); tests pass synthetic ones. Samples are evaluated in chunks
+of bounded size.
 
 Daily totals for fields integrate over each daylight period by Gauss–Legendre
 quadrature (8 nodes by default: a smooth integrand between the edges, and 4–5 times
@@ -50,13 +51,14 @@ error against a 1-minute trapezoid on the engine (well under 1 %)."""
 
 
 def engine_evaluator(spectra: Sequence[str], transmittance=None, method: str = "auto",
-                     ozone_resolver=None, full_solve_budget=None) -> Evaluator:
+                     ozone_resolver=None, full_solve_budget=None, transfer_memo=None) -> Evaluator:
     """Evaluator that runs ``models.engine.compute`` on sample columns (one
-    ``full_solve_budget``, if given, shared by every call)."""
+    ``full_solve_budget`` and one ``transfer_memo``, if given, shared by every call)."""
     def evaluate(columns: Columns) -> Columns:
         result = engine.compute(engine.Conditions.from_columns(columns), spectra=tuple(spectra),
                                 transmittance=transmittance, ozone_resolver=ozone_resolver,
-                                method=method, full_solve_budget=full_solve_budget)
+                                method=method, full_solve_budget=full_solve_budget,
+                                transfer_memo=transfer_memo)
         return result.as_columns()
 
     return evaluate

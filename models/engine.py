@@ -11,13 +11,13 @@ documented ones and the result says which values were used.
 """
 from __future__ import annotations
 
+import hashlib
 from dataclasses import dataclass, field, fields
-from functools import lru_cache
-from typing import Mapping, Sequence
+from typing import Callable, Mapping, Sequence
 
 import numpy as np
 
-from uvdose.models import MODEL_VERSION, action_spectra, clear_sky, optics, receivers, surfaces, uncertainty, uv_index
+from uvdose.models import MODEL_VERSION, clear_sky, optics, receivers, surfaces, uncertainty, uv_index
 from uvdose.models.ozone_grids import OzoneResolver
 from uvdose.models.solar_geometry import solar_position, surface_pressure_hpa
 from uvdose.models.spectral_grid import WAVELENGTH_NM
@@ -217,11 +217,6 @@ class EngineResult:
         return cls(effective_w_m2=effective, relative_sigma=sigma, spectrum_w_m2_nm=spectrum, **plain)
 
 
-@lru_cache(maxsize=16)
-def _weights(names: tuple[str, ...]) -> np.ndarray:
-    return action_spectra.weight_matrix(names, WAVELENGTH_NM)
-
-
 def _given(values: np.ndarray, default: float | np.ndarray) -> np.ndarray:
     return np.where(np.isnan(values), default, values)
 
@@ -265,6 +260,131 @@ def _relative_sigma(c: Conditions, zenith_deg, ozone_du, ozone_sigma, aod_550, s
     return out
 
 
+TRANSFER_STATE_COLUMNS: tuple[str, ...] = (
+    "true_zenith_deg",
+    "ozone_du",
+    "pressure_hpa",
+    "surface_albedo",
+    "aod_550",
+    "angstrom_exponent",
+    "single_scattering_albedo",
+    "asymmetry_factor",
+)
+"""The inputs of the radiative transfer of one record (its *physics state*): the true
+(airless) solar zenith the transfer uses (``models.atmosphere``, "Which zenith angle"), the total ozone, the surface pressure, the surface albedo and
+the aerosol (optical depth at 550 nm, Ångström exponent, single scattering albedo,
+asymmetry factor), every default applied. Two records with the same state get the same
+horizontal irradiance per unit extraterrestrial irradiance, wherever and whenever they
+are; the Earth–Sun distance, the cloud factor and the receiver's orientation then act
+on it linearly (:func:`compute`)."""
+
+TransferMemo = Callable[[str, Mapping[str, np.ndarray], Callable[[Mapping[str, np.ndarray]],
+                                                                 dict[str, np.ndarray]]],
+                        dict[str, np.ndarray]]
+"""``memo(description, state, transfer) -> columns``: how a caller may keep transfer
+results. ``state`` holds the :data:`TRANSFER_STATE_COLUMNS` of N records, ``transfer``
+computes the transfer columns of any such state columns, ``description`` names
+everything besides the state that its results depend on (weights, filter, method). The
+memo must return what ``transfer(state)`` returns, for every record, or values the caller
+computed with ``transfer`` for states it treats as the same (e.g. a cache that rounds
+each state column to a stated step)."""
+
+DIRECT_PREFIX = "direct_w_m2."
+"""Transfer columns of weighted direct horizontal irradiance: this prefix + spectrum name."""
+DIFFUSE_PREFIX = "diffuse_w_m2."
+"""Transfer columns of weighted diffuse horizontal irradiance: this prefix + spectrum name."""
+OPEN_SKY_ERYTHEMA = "global_w_m2.open_sky_erythema"
+"""Transfer column of the unfiltered erythemal global horizontal irradiance (UV Index)."""
+SPECTRAL_DIRECT_PREFIX = "direct_w_m2_nm."
+"""Transfer columns of direct horizontal spectral irradiance: prefix + wavelength index."""
+SPECTRAL_DIFFUSE_PREFIX = "diffuse_w_m2_nm."
+"""Transfer columns of diffuse horizontal spectral irradiance: prefix + wavelength index."""
+
+
+def is_spectral_column(name: str) -> bool:
+    """Whether a result or transfer column holds one wavelength of a spectrum."""
+    return name.startswith((SPECTRUM_PREFIX, SPECTRAL_DIRECT_PREFIX, SPECTRAL_DIFFUSE_PREFIX))
+
+
+@dataclass(frozen=True)
+class TransferPlan:
+    """What the transfer of one engine call returns, per record and at 1 AU under a
+    clear sky on a horizontal surface.
+
+    ``spectral``: the direct and diffuse spectra (then the filter, the receiver and the
+    weights are applied per record afterwards); otherwise the direct and diffuse
+    integrals weighted by ``names`` behind ``transmittance`` (W,), plus the open-sky
+    (unfiltered) erythemal global irradiance for the UV Index.
+    """
+
+    names: tuple[str, ...]
+    transmittance: np.ndarray | None
+    spectral: bool
+    method: str
+
+    def description(self) -> str:
+        """Text naming everything the transfer columns depend on besides the state."""
+        if self.spectral:
+            return f"transfer:spectral;method={self.method}"
+        curve = "none"
+        if self.transmittance is not None:
+            data = np.ascontiguousarray(self.transmittance, dtype=np.float64).tobytes()
+            curve = hashlib.sha256(data).hexdigest()[:20]
+        return f"transfer:weighted;names={','.join(self.names)};filter={curve};method={self.method}"
+
+    def run(self, state: Mapping[str, np.ndarray], full_solve_budget=None) -> dict[str, np.ndarray]:
+        """The transfer columns of ``state`` (see the class docstring)."""
+        arguments = [np.asarray(state[name], dtype=np.float64) for name in TRANSFER_STATE_COLUMNS]
+        zenith, ozone, pressure, albedo, aod, alpha, ssa, g = arguments
+        if self.spectral:
+            sky = clear_sky.spectral_irradiance(zenith, 1.0, ozone, pressure, albedo, aod, alpha, ssa,
+                                                g, method=self.method,
+                                                full_solve_budget=full_solve_budget)
+            columns = {}
+            for prefix, spectrum in ((SPECTRAL_DIRECT_PREFIX, sky.direct_horizontal_w_m2_nm),
+                                     (SPECTRAL_DIFFUSE_PREFIX, sky.diffuse_horizontal_w_m2_nm)):
+                columns.update({f"{prefix}{i}": spectrum[:, i] for i in range(spectrum.shape[1])})
+            return columns
+        direct, diffuse, open_sky = clear_sky.weighted_irradiance(
+            zenith, ozone, pressure, albedo, aod, alpha, ssa, g, self.names,
+            transmittance=self.transmittance, method=self.method,
+            full_solve_budget=full_solve_budget)
+        columns = {}
+        for index, name in enumerate(self.names):
+            columns[DIRECT_PREFIX + name] = direct[:, index]
+            columns[DIFFUSE_PREFIX + name] = diffuse[:, index]
+        columns[OPEN_SKY_ERYTHEMA] = open_sky
+        return columns
+
+
+def transfer_state(conditions: Conditions, ozone_resolver: OzoneResolver | None = None):
+    """Solar position, the physics state and the per-record factors of N records.
+
+    Returns ``(sun, state, ozone_source, cloud_modification_factor)``: the
+    ``models.solar_geometry.SolarPosition`` for each record's own time and place, the
+    :data:`TRANSFER_STATE_COLUMNS` as a dict of (N,) arrays (defaults applied), the
+    source label of each record's ozone and its cloud modification factor (1 unless given).
+    """
+    c = conditions
+    elevation_m = _given(c.elevation_m, 0.0)
+    pressure_hpa = surface_pressure_hpa(elevation_m, c.pressure_hpa)
+    sun = solar_position(c.time_unix_s, c.latitude_deg, c.longitude_deg, elevation_m, pressure_hpa)
+    resolver = ozone_resolver if ozone_resolver is not None else OzoneResolver()
+    ozone_du, ozone_source = resolver.resolve(c.latitude_deg, c.longitude_deg, c.time_unix_s, c.ozone_du)
+    state = {
+        "true_zenith_deg": sun.true_zenith_deg,
+        "ozone_du": ozone_du,
+        "pressure_hpa": pressure_hpa,
+        "surface_albedo": _surface_albedo(c),
+        "aod_550": _given(c.aod_550, optics.DEFAULT_AOD_550),
+        "angstrom_exponent": _given(c.angstrom_exponent, optics.DEFAULT_ANGSTROM_EXPONENT),
+        "single_scattering_albedo": _given(c.single_scattering_albedo,
+                                           optics.DEFAULT_SINGLE_SCATTERING_ALBEDO),
+        "asymmetry_factor": _given(c.asymmetry_factor, optics.DEFAULT_ASYMMETRY_FACTOR),
+    }
+    return sun, state, ozone_source, _given(c.cloud_modification_factor, 1.0)
+
+
 def compute(
     conditions: Conditions,
     spectra: Sequence[str] = DEFAULT_SPECTRA,
@@ -273,6 +393,7 @@ def compute(
     ozone_resolver: OzoneResolver | None = None,
     method: str = "auto",
     full_solve_budget: clear_sky.FullSolveBudget | None = None,
+    transfer_memo: TransferMemo | None = None,
 ) -> EngineResult:
     """Compute UV quantities for N records.
 
@@ -288,69 +409,78 @@ def compute(
     method : clear-sky method, see :func:`models.clear_sky.spectral_irradiance`.
     full_solve_budget : bounds the records sent to the full solve (see
         :class:`models.clear_sky.FullSolveBudget`); ``None`` for no bound.
+    transfer_memo : keeps transfer results between calls (see :data:`TransferMemo`);
+        ``None`` computes the transfer of every record.
+
+    Method
+    ------
+    The solar position is computed for every record's own time and place. The radiative
+    transfer depends on the record's physics state only (:data:`TRANSFER_STATE_COLUMNS`)
+    and gives the horizontal direct and diffuse irradiance at 1 AU under a clear sky
+    (:class:`TransferPlan`). Everything else acts on it linearly and exactly, per record:
+    the Earth–Sun distance (1/d²), the cloud modification factor (direct and diffuse
+    alike, see ``models.clouds``), the receiver's orientation (isotropic transposition,
+    ``models.receivers``: a weighted integral of the receiver's irradiance is the same
+    combination of the horizontal direct and diffuse weighted integrals) and a filter
+    (folded into the weights).
     """
-    c = conditions
-    elevation_m = _given(c.elevation_m, 0.0)
-    pressure_hpa = surface_pressure_hpa(elevation_m, c.pressure_hpa)
-    sun = solar_position(c.time_unix_s, c.latitude_deg, c.longitude_deg, elevation_m, pressure_hpa)
-
     resolver = ozone_resolver if ozone_resolver is not None else OzoneResolver()
-    ozone_du, ozone_source = resolver.resolve(c.latitude_deg, c.longitude_deg, c.time_unix_s, c.ozone_du)
-    surface_albedo = _surface_albedo(c)
-    aod_550 = _given(c.aod_550, optics.DEFAULT_AOD_550)
-
-    # The radiative transfer takes the beam's direction at the top of the atmosphere (the
-    # true zenith, models.atmosphere); receivers and the reported position the apparent one.
-    sky = clear_sky.spectral_irradiance(
-        sun.true_zenith_deg,
-        sun.earth_sun_distance_au,
-        ozone_du,
-        pressure_hpa,
-        surface_albedo,
-        aod_550,
-        _given(c.angstrom_exponent, optics.DEFAULT_ANGSTROM_EXPONENT),
-        _given(c.single_scattering_albedo, optics.DEFAULT_SINGLE_SCATTERING_ALBEDO),
-        _given(c.asymmetry_factor, optics.DEFAULT_ASYMMETRY_FACTOR),
-        method=method,
-        full_solve_budget=full_solve_budget,
-    )
-    # The cloud modification factor scales direct and diffuse alike (see models.clouds).
-    cmf = _given(c.cloud_modification_factor, 1.0)
-    direct = sky.direct_horizontal_w_m2_nm * cmf[:, None]
-    diffuse = sky.diffuse_horizontal_w_m2_nm * cmf[:, None]
-    horizontal = direct + diffuse
-
+    sun, state, ozone_source, cmf = transfer_state(conditions, resolver)
+    c = conditions
     names = tuple(dict.fromkeys(("erythema", *spectra, *_BANDS)))
-    weights = _weights(names)
-    erythemal_horizontal = horizontal @ weights[:, 0]
+    curve = None if transmittance is None else np.asarray(transmittance, dtype=np.float64)
+    spectral = include_spectrum or (curve is not None and curve.ndim == 2)
+    plan = TransferPlan(names, None if spectral else curve, spectral, method)
 
+    def transfer(part: Mapping[str, np.ndarray]) -> dict[str, np.ndarray]:
+        return plan.run(part, full_solve_budget)
+
+    if transfer_memo is None:
+        horizontal = transfer(state)
+    else:
+        horizontal = transfer_memo(plan.description(), state, transfer)
+
+    scale = cmf / sun.earth_sun_distance_au ** 2
     tilt_deg = _given(c.tilt_deg, 0.0)
     sky_view = _given(c.sky_view_factor, 1.0)
-    on_receiver = horizontal
-    if np.any(tilt_deg != 0.0) or np.any(sky_view != 1.0):
-        on_receiver = receivers.receiver_spectral_irradiance(
-            direct,
-            diffuse,
-            sun.zenith_deg,
-            sun.azimuth_deg,
-            tilt_deg,
-            _given(c.receiver_azimuth_deg, 180.0),
-            sky_view,
-            surface_albedo,
-        )
-    if transmittance is not None:
-        on_receiver = on_receiver * transmittance
+    tilted = bool(np.any(tilt_deg != 0.0) or np.any(sky_view != 1.0))
+    if tilted:
+        f_direct, f_diffuse, f_ground = receivers.transposition_factors(
+            sun.zenith_deg, sun.azimuth_deg, tilt_deg, _given(c.receiver_azimuth_deg, 180.0),
+            sky_view, state["surface_albedo"])
+        f_direct, f_diffuse = f_direct + f_ground, f_diffuse + f_ground
 
-    effective = on_receiver @ weights
-    by_name = {name: effective[:, index] for index, name in enumerate(names)}
+    spectrum = None
+    if spectral:
+        direct = np.column_stack([horizontal[f"{SPECTRAL_DIRECT_PREFIX}{i}"] for i in range(WAVELENGTH_NM.size)])
+        diffuse = np.column_stack([horizontal[f"{SPECTRAL_DIFFUSE_PREFIX}{i}"] for i in range(WAVELENGTH_NM.size)])
+        direct *= scale[:, None]
+        diffuse *= scale[:, None]
+        weights = clear_sky.grid_weights(names)
+        erythemal_horizontal = (direct + diffuse) @ weights[:, 0]
+        on_receiver = (direct * f_direct[:, None] + diffuse * f_diffuse[:, None]) if tilted else direct + diffuse
+        if curve is not None:
+            on_receiver = on_receiver * curve
+        effective = on_receiver @ weights
+        by_name = {name: effective[:, index] for index, name in enumerate(names)}
+        spectrum = on_receiver if include_spectrum else None
+    else:
+        by_name = {}
+        for name in names:
+            direct_part = horizontal[DIRECT_PREFIX + name]
+            diffuse_part = horizontal[DIFFUSE_PREFIX + name]
+            on_receiver = (direct_part * f_direct + diffuse_part * f_diffuse) if tilted else direct_part + diffuse_part
+            by_name[name] = on_receiver * scale
+        erythemal_horizontal = horizontal[OPEN_SKY_ERYTHEMA] * scale
+
     uvi = uv_index.uv_index(erythemal_horizontal)
 
     cloud_source = _cloud_source(c)
     ozone_sigma = resolver.relative_sigma(ozone_source, c.latitude_deg, c.longitude_deg, c.time_unix_s)
     requested = list(dict.fromkeys(spectra))
     relative_sigma = _relative_sigma(
-        c, sun.true_zenith_deg, ozone_du, ozone_sigma, aod_550, surface_albedo, cloud_source, cmf,
-        transmittance, weights, names, requested,
+        c, sun.true_zenith_deg, state["ozone_du"], ozone_sigma, state["aod_550"], state["surface_albedo"],
+        cloud_source, cmf, transmittance, clear_sky.grid_weights(names), names, requested,
         {"uv_index": uvi, **{name: by_name[name] for name in requested}})
     return EngineResult(
         solar_zenith_deg=sun.zenith_deg,
@@ -361,13 +491,13 @@ def compute(
         effective_w_m2={name: by_name[name] for name in dict.fromkeys(spectra)},
         uvb_w_m2=by_name["uvb"],
         uva_w_m2=by_name["uva"],
-        ozone_du=ozone_du,
+        ozone_du=state["ozone_du"],
         ozone_source=ozone_source,
-        pressure_hpa=pressure_hpa,
-        surface_albedo=surface_albedo,
+        pressure_hpa=state["pressure_hpa"],
+        surface_albedo=state["surface_albedo"],
         cloud_modification_factor=cmf,
         cloud_source=cloud_source,
         ozone_relative_sigma=ozone_sigma,
         relative_sigma=relative_sigma,
-        spectrum_w_m2_nm=on_receiver if include_spectrum else None,
+        spectrum_w_m2_nm=spectrum,
     )

@@ -31,7 +31,8 @@ Components are independent and add in quadrature (``combined``):
     interpolation error, by solar zenith (``model_relative_sigma``), and the spread of
     the extraterrestrial spectrum and cross sections.
 ``cache``
-    Added by the service when a value comes from a cache cell (``CACHE_RELATIVE_SIGMA``).
+    Added by the service when a value comes from a rounded physics state (its cache;
+    ``CACHE_RELATIVE_SIGMA``).
 
 A dose sums samples whose errors are correlated: one ozone column and one cloud state
 per day, one aerosol, albedo and model error per window. :func:`dose_relative_sigma`
@@ -124,9 +125,10 @@ MODEL_TABLE_SIGMA = 0.006
 MODEL_INPUT_SIGMA = 0.02
 """Extraterrestrial spectrum (ASTM G173) and ozone cross sections in the UV, about
 2 % (from memory)."""
-CACHE_RELATIVE_SIGMA = {"uv_index": 0.012, "effective": 0.017}
-"""Error of a cache cell's value: the UV Index within 2 % and weighted quantities within
-3 % (measured, README "Cache"); uniform errors of ±2 % and ±3 % have these sigmas."""
+CACHE_RELATIVE_SIGMA = {"uv_index": 0.0029, "effective": 0.0029}
+"""Error of a value computed on a rounded physics state (the service's cache,
+``service.cache.CACHE_ERROR_BOUND``): the UV Index and weighted quantities within 0.5 %
+(measured, README "Cache"); a uniform error of ±0.5 % has this sigma."""
 
 # --- sensitivity grid -----------------------------------------------------------------
 _ZENITH_NODES_DEG = np.array([0.0, 10.0, 20.0, 30.0, 40.0, 50.0, 55.0, 60.0, 65.0, 70.0,

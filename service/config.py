@@ -65,11 +65,6 @@ def _positive_number(text: str) -> float:
     return value
 
 
-def _number(text: str) -> float:
-    """a number"""
-    return float(text)
-
-
 def _switch(text: str) -> bool:
     """on or off (also true/false, yes/no, 1/0)"""
     lowered = text.strip().lower()
@@ -133,21 +128,20 @@ SETTINGS: tuple[Setting, ...] = (
     # Total ozone
     _same("UVDOSE_OZONE_GRIDS", None, _text,
           "Operator total-ozone grid files, comma-separated, tried in order before the climatology."),
-    # Grid-cell cache
+    # Physics-state cache
     _same("UVDOSE_CACHE", "auto", _cache_backend,
           "Cache backend; auto is redis when REDIS_URL is set, else memory (in-process, per worker)."),
     _same("REDIS_URL", None, _text,
-          "Redis for the grid-cell cache; unset means the in-process cache."),
+          "Redis for the physics-state cache; unset means the in-process cache."),
     _same("UVDOSE_CACHE_TTL_S", 86_400.0, _positive_number,
           "Lifetime of a cache entry in seconds (both backends)."),
     _same("UVDOSE_CACHE_MAX_ENTRIES", 50_000, _whole_number(1),
           "Bound of the in-process cache, entries per worker."),
     _same("UVDOSE_CACHE_PREFIX", "uvdose:", _text,
           "Prefix of every cache key, to share one Redis between deployments."),
-    _same("UVDOSE_CELL_DEG", 0.05, _number,
-          "Cache cell size in degrees of latitude and longitude; must divide 180 and 360."),
-    _same("UVDOSE_CELL_MINUTES", 2.0, _number,
-          "Cache cell length in minutes of time; must be positive."),
+    _same("UVDOSE_CACHE_MAX_WRITES", 10_000, _whole_number(0),
+          "Most new cache entries one request writes (those most of its records use first); "
+          "the rest it answers without storing."),
     _same("UVDOSE_REDIS_CONNECT_TIMEOUT_S", 0.25, _positive_number,
           "Connect timeout of every Redis call, seconds."),
     _same("UVDOSE_REDIS_TIMEOUT_S", 0.5, _positive_number,

@@ -1,17 +1,20 @@
 """The one way from the service to the engine: the app's ozone resolver, its cache, the
-full-solve bound, and every engine call, with the cache context that keys its results.
+full-solve bound, and every engine call.
 
 ``init_app(app)`` attaches the resolver (``app.extensions["uvdose_ozone"]``; operator
-grids from config ``UVDOSE_OZONE_GRIDS``) and the grid-cell cache
-(``app.extensions["uvdose_cache"]``), and loads the engine's precomputed table, so that a
+grids from config ``UVDOSE_OZONE_GRIDS``) and the physics-state cache
+(``app.extensions["uvdose_cache"]``), and loads the engine's precomputed tables, so that a
 bad grid file or table fails the start, not a request. In a request, :func:`current`
 gives the :class:`Gateway` of the app; the offline ``uvdose batch`` uses :func:`offline`
 (the operator grids of the environment's settings, no cache, no bound). Blueprints, the catalogue and the
 CLI reach the engine only through here.
 
-A cache context holds every request-wide option that changes a result (spectra, spectral
-output, glazing) and the resolver's fingerprint, since a changed grid file changes
-results without a new ``MODEL_VERSION``; the cache adds ``MODEL_VERSION`` itself.
+The cache sits behind the engine's ``transfer_memo``: it keeps the radiative transfer of
+each rounded physics state under the engine's own description of that transfer (weights,
+filter, method); the cache adds ``MODEL_VERSION``. Ozone enters as its value in the state,
+so operator grids need no part in the key. One request (one :meth:`Gateway.irradiance`
+call, or one dose evaluator with all its chunks) shares one full-solve budget and one
+cache write allowance.
 """
 from __future__ import annotations
 
@@ -70,59 +73,56 @@ class Gateway:
     cache: Any = None
     max_full_solve_records: int | None = None
 
-    @property
-    def ozone_fingerprint(self) -> str:
-        return getattr(self.ozone_resolver, "fingerprint", "default")
-
     def _budget(self) -> clear_sky.FullSolveBudget | None:
         limit = self.max_full_solve_records
         return None if limit is None else clear_sky.FullSolveBudget(limit)
 
     @property
     def caches(self) -> bool:
-        """Whether results come from cache cells (the engine run on each cell's centre)."""
+        """Whether results come from rounded physics states (a cache with a backend)."""
         return self.cache is not None and getattr(self.cache, "store", None) is not None
 
-    def _through_cache(self, columns: Columns, compute: Callable, context: str,
-                       quantities: Sequence[str] = ()) -> dict[str, np.ndarray]:
-        """``compute`` through the cache; with the cache cell's error added to the
-        uncertainty of ``quantities`` when results come from cells."""
+    def _memo(self) -> Callable | None:
+        """The engine's ``transfer_memo`` for one request: the cache with one write allowance."""
         if self.cache is None:
-            return compute(columns)
-        result = self.cache.compute_through(columns, compute, context)
+            return None
+        writes = self.cache.allowance()
+
+        def memo(description: str, state: Columns, transfer: Callable) -> dict[str, np.ndarray]:
+            return self.cache.compute_through(state, transfer, description, writes)
+
+        return memo
+
+    def _with_cache_share(self, result: dict[str, np.ndarray], quantities: Sequence[str]) -> dict[str, np.ndarray]:
+        """``result`` with the cache's error added to the uncertainty of ``quantities`` when
+        the transfer came from rounded states."""
         return uncertainty_fields.with_cache_share(result, quantities) if self.caches else result
 
     def irradiance(self, columns: Columns, spectra: Sequence[str], include_spectrum: bool) -> dict[str, np.ndarray]:
         """``models.engine.compute`` on validated condition columns; result columns
-        (``EngineResult.as_columns`` names), through the cache."""
+        (``EngineResult.as_columns`` names), the transfer through the cache."""
         from uvdose.models import engine
 
-        budget = self._budget()
-
-        def compute(part: Columns) -> dict[str, np.ndarray]:
-            conditions = engine.Conditions.from_columns(part)
-            return engine.compute(conditions, spectra=spectra, include_spectrum=include_spectrum,
-                                  ozone_resolver=self.ozone_resolver, full_solve_budget=budget).as_columns()
-
-        context = (f"irradiance;spectra={','.join(spectra)};spectrum={int(include_spectrum)};"
-                   f"ozone={self.ozone_fingerprint}")
-        return self._through_cache(columns, compute, context, ("uv_index", *spectra))
+        conditions = engine.Conditions.from_columns(columns)
+        result = engine.compute(conditions, spectra=spectra, include_spectrum=include_spectrum,
+                                ozone_resolver=self.ozone_resolver, full_solve_budget=self._budget(),
+                                transfer_memo=self._memo()).as_columns()
+        return self._with_cache_share(result, ("uv_index", *spectra))
 
     def dose_evaluator(self, spectra: Sequence[str], transmittance: np.ndarray | None, glazing: str,
                        kind: str) -> dose.Evaluator:
         """The evaluator the dose and route integrations of models/ call: the engine
-        behind ``transmittance`` (``glazing`` labels it in the cache context), through the
-        cache, with one full-solve bound over every call; ``kind`` names the endpoint."""
+        behind ``transmittance`` (``glazing`` names it in messages), the transfer through
+        the cache, with one full-solve bound and one cache write allowance over every call;
+        ``kind`` names the endpoint."""
         compute = dose.engine_evaluator(spectra, transmittance=transmittance, ozone_resolver=self.ozone_resolver,
-                                        full_solve_budget=self._budget())
-        context = (f"doses:{kind};spectra={','.join(spectra)};glazing={glazing};"
-                   f"ozone={self.ozone_fingerprint}")
+                                        full_solve_budget=self._budget(), transfer_memo=self._memo())
 
         def evaluate(columns: Columns) -> dict[str, np.ndarray]:
             # Samples are built from validated input, so a ValueError inside the engine is
             # our fault, not the client's: keep it out of the 422 path of the endpoints.
             try:
-                return self._through_cache(columns, compute, context, ("uv_index", *spectra))
+                return self._with_cache_share(compute(columns), ("uv_index", *spectra))
             except ValueError as error:
                 raise RuntimeError(f"engine failed on dose samples: {error}") from error
 
@@ -132,8 +132,8 @@ class Gateway:
         return self.ozone_resolver if self.ozone_resolver is not None else OzoneResolver()
 
     def with_ozone_climatology(self, name: str | None) -> "Gateway":
-        """This gateway with the embedded climatology ``name`` (``None``: unchanged); the
-        resolver's fingerprint, and so the cache context, names a non-default choice."""
+        """This gateway with the embedded climatology ``name`` (``None``: unchanged). The
+        cache needs no word of it: the ozone value it gives is part of each record's state."""
         if name is None or name == self._resolver().climatology:
             return self
         return replace(self, ozone_resolver=self._resolver().with_climatology(name))

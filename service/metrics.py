@@ -47,7 +47,8 @@ RECORDS_COMPUTED = Counter(
 )
 CACHE_EVENTS = Counter(
     "uvdose_cache_events_total",
-    "Grid-cell cache lookups by outcome: hit, miss or error.",
+    "Physics-state cache entries by outcome: hit, miss, error, or unstored (computed but not "
+    "written, over the request's write bound).",
     ("event",),
 )
 CACHE_LATENCY = Histogram(
@@ -56,11 +57,11 @@ CACHE_LATENCY = Histogram(
     buckets=(0.0005, 0.001, 0.0025, 0.005, 0.01, 0.025, 0.05, 0.1, 0.25, 1.0),
 )
 
-CACHE_EVENT_NAMES = ("hit", "miss", "error")
+CACHE_EVENT_NAMES = ("hit", "miss", "error", "unstored")
 
 
 def count_cache(event: str, amount: int = 1) -> None:
-    """Count ``amount`` cache lookups with outcome ``event`` ("hit", "miss" or "error")."""
+    """Count ``amount`` cache entries with outcome ``event`` ("hit", "miss", "error" or "unstored")."""
     if event not in CACHE_EVENT_NAMES:
         raise ValueError(f"cache event must be one of {CACHE_EVENT_NAMES}, got {event!r}")
     if amount:

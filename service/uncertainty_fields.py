@@ -24,8 +24,8 @@ BASIS = ("1-sigma relative uncertainty (fractional standard deviation) of each v
 
 
 def with_cache_share(result: Mapping[str, np.ndarray], quantities: Sequence[str]) -> dict[str, np.ndarray]:
-    """Result columns with the cache cell's error (``models.uncertainty.CACHE_RELATIVE_SIGMA``)
-    as the ``cache`` component of every lit quantity: the engine ran on the cell's centre."""
+    """Result columns with the cache's error (``models.uncertainty.CACHE_RELATIVE_SIGMA``)
+    as the ``cache`` component of every lit quantity: the transfer ran on a rounded state."""
     out = dict(result)
     for quantity in quantities:
         key = sigma_column(quantity, "cache")

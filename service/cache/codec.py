@@ -1,9 +1,11 @@
-"""The binary form of cached engine results, and the check that proves a value intact.
+"""The binary form of cached transfer results, and the check that proves a value intact.
 
-A value is one cell's results: a 16-byte header (8 bytes of layout digest; an 8-byte
-check over the cell's key and the payload, so a value is used only for its own cell and
+A value is one entry's results: a 16-byte header (8 bytes of layout digest; an 8-byte
+check over the entry's key and the payload, so a value is used only for its own entry and
 only as it was written), then the payload: the numeric columns as raw little-endian
-float64 bytes (spectral columns as float32) and the string columns as fixed-width UTF-8.
+bytes of their own type, spectral columns (``models.engine.is_spectral_column``) as float32 (7
+significant digits, far finer than the cache's own rounding of the state), and string
+columns as fixed-width UTF-8.
 Which column sits where is the value's :class:`Layout`, stored once per layout.
 """
 from __future__ import annotations
@@ -15,7 +17,7 @@ from typing import Mapping
 
 import numpy as np
 
-from uvdose.models.engine import SPECTRUM_PREFIX
+from uvdose.models.engine import is_spectral_column
 from uvdose.service.cache.byte_rows import digest, row_checks, split_rows
 
 Columns = dict[str, np.ndarray]
@@ -55,7 +57,7 @@ def _value_checks(key_rows: np.ndarray, payload: np.ndarray) -> np.ndarray:
 
 
 def encode(results: Mapping[str, np.ndarray], key_rows: np.ndarray) -> tuple[Layout, list[bytes]]:
-    """Serialise M cells of engine output (their key rows given) to M values sharing one layout."""
+    """Serialise M entries of transfer output (their key rows given) to M values sharing one layout."""
     fields: list[tuple[str, str, str, int]] = []
     blocks: list[np.ndarray] = []
     count = len(key_rows)
@@ -73,7 +75,7 @@ def encode(results: Mapping[str, np.ndarray], key_rows: np.ndarray) -> tuple[Lay
             blocks.append(fixed.view(np.uint8).reshape(count, width))
             fields.append((name, kind, f"S{width}", width))
             continue
-        stored = np.dtype(np.float32) if name.startswith(SPECTRUM_PREFIX) else column.dtype
+        stored = np.dtype(np.float32) if is_spectral_column(name) else column.dtype
         data = np.ascontiguousarray(column.reshape(count, -1).astype(stored.newbyteorder("<")))
         fields.append((name, column.dtype.str, stored.newbyteorder("<").str + f"x{data.shape[1]}",
                        data.nbytes // max(count, 1)))

@@ -1,7 +1,7 @@
-"""Cache keys of records, built from their cell indices (:mod:`.cells`).
+"""Cache keys of records, built from their step indices (:mod:`.physics_keys`).
 
-A cell key is ``prefix`` + ``c:`` + a 10-byte digest of the namespace (model version,
-request context, keying description, column names) + each column's cell index as
+An entry key is ``prefix`` + ``s:`` + a 10-byte digest of the namespace (model version,
+transfer description, keying description, column names) + each column's step index as
 little-endian bytes, in column-name order. The value layouts (:mod:`.codec`) live under
 ``prefix`` + ``l:`` + the layout digest.
 """
@@ -15,13 +15,13 @@ from uvdose.service.cache.byte_rows import digest
 
 
 def key_matrix(prefix: bytes, namespace: Sequence[str], indices: Mapping[str, np.ndarray]) -> np.ndarray:
-    """The ``(N, key bytes)`` uint8 matrix of the cell keys of N records.
+    """The ``(N, key bytes)`` uint8 matrix of the entry keys of N records.
 
     ``namespace`` holds everything besides the indices that tells results apart (the
-    column names are added here); ``indices`` are the records' integer cell indices.
+    column names are added here); ``indices`` are the records' integer step indices.
     """
     names = sorted(indices)
-    head = prefix + b"c:" + digest("\0".join([*namespace, *names]), 10)
+    head = prefix + b"s:" + digest("\0".join([*namespace, *names]), 10)
     count = len(next(iter(indices.values()))) if indices else 0
     blocks = [np.broadcast_to(np.frombuffer(head, dtype=np.uint8), (count, len(head)))]
     for name in names:

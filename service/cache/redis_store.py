@@ -41,6 +41,7 @@ class RedisStore:
 
     name = "redis"
     _MGET_CHUNK = 10_000
+    _SET_CHUNK = 2_000
 
     def __init__(self, url: str, ttl_s: float, connect_timeout_s: float, timeout_s: float):
         import redis
@@ -70,6 +71,9 @@ class RedisStore:
         return found
 
     def set_many(self, keys: list[bytes], values: list[bytes], layout_key: bytes, layout: bytes) -> None:
+        """Write every entry with the TTL, in round trips of at most ``_SET_CHUNK`` commands,
+        so that the wait for one round trip's replies, which the read timeout bounds, does
+        not grow with the batch."""
         ttl = b"%d" % self.ttl_ms
         tail = b"$2\r\nPX\r\n$%d\r\n%s\r\n" % (len(ttl), ttl)
         commands = [resp_command(b"SET", layout_key, layout, b"PX", ttl)]
@@ -77,7 +81,9 @@ class RedisStore:
             b"*5\r\n$3\r\nSET\r\n$%d\r\n%s\r\n$%d\r\n%s\r\n%s" % (len(k), k, len(v), v, tail)
             for k, v in zip(keys, values)
         )
-        self._round_trip(b"".join(commands), len(commands))
+        for start in range(0, len(commands), self._SET_CHUNK):
+            chunk = commands[start:start + self._SET_CHUNK]
+            self._round_trip(b"".join(chunk), len(chunk))
 
     def _round_trip(self, packed: bytes, replies: int) -> list[Any]:
         """Send packed RESP commands in one write and read their replies. A failure part

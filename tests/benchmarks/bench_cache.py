@@ -1,28 +1,39 @@
-"""Benchmark of the grid-cell cache (a script; pytest does not collect it).
+"""Benchmark of the physics-state cache (a script; pytest does not collect it).
 
-    python tests/benchmarks/bench_cache.py [--records 10000] [--cells 500] [--repeats 3]
+    python tests/benchmarks/bench_cache.py [--repeats 3] [--skip-http] [--stores-only]
 
-Scenario (invented, our own): a cooperative's spraying planner asks for 10 000 records at
-once, its orchards spread over 500 distinct cells of 0.05° × 2 min. Printed:
+Scenarios (invented, our own):
 
-1. Key building alone (quantise, pack, dedupe, split into keys) for 10 000 records,
-   against a baseline of one ``hashlib.blake2b`` per record in a Python loop.
+- *fleet*: the Quai Nord depot's 20 vans over Lyon (45.70–45.80° N, 4.78–4.92° E, streets
+  at 160–320 m) for a month (July 2026), a fix every 2 minutes from 08:00 to 18:00 local
+  time, asphalt ground, ozone from the climatology; one request per van and day
+  (300 records), 600 requests.
+- *district*: 150 fields of a 20 × 20 km farm district near Valence (44.85–45.03° N,
+  4.85–5.10° E, 120–260 m), each asking for its season (1 April – 30 September 2026,
+  8 Gauss–Legendre samples a day, grass ground); one request per field (1 464 samples),
+  150 requests.
+
+Printed:
+
+1. Key building alone (round, pack, dedupe, split into keys) for 10 000 records, against
+   a baseline of one ``hashlib.blake2b`` per record in a Python loop.
 2. The stores against the libraries they could be (the figures quoted beside
    ``service/cache/memory_store.py`` and ``redis_store.py``): the in-process store's
    ``get_many``/``set_many`` of 10 000 keys against ``cachetools`` (``LRUCache`` holding
    (expiry, value) pairs, ``TTLCache``, ``TLRUCache``) behind the same lock; the Redis
    store's hand-packed pipelines (500 and 10 000 ``SET … PX``; MGET of them) against
    redis-py's ``pipeline(transaction=False)`` and ``Redis.mget``.
-3. ``compute_through`` with the real engine, cold and warm, for the Redis and the
-   in-process backends, against the uncached engine call on the same records.
-4. The same through HTTP: ``POST /v1/irradiance`` on one gunicorn worker on loopback
-   (one worker so that the in-process cache is the one asked twice), cold and warm.
-   Target: warm/cold ≥ 5× for both backends. Run twice: with the default aerosol (the
-   engine's precomputed-table path, a few microseconds a cell, so HTTP parsing and
-   serialisation dominate both runs) and with a client-supplied aerosol that sends each
-   cell through the full solve. "cold" already benefits from the cache's
-   dedupe (500 engine rows for 10 000 records), so the uncached (UVDOSE_CACHE=off) run is
-   printed too, with the uncached/warm ratio.
+3. Each stream through the engine with the in-process cache, keyed two ways: the
+   *physics key* of the service (the transfer of each rounded state, solar geometry exact)
+   and, for comparison, the *cell key* it replaced (place in 0.05° cells, time in 2-minute
+   cells, the other inputs rounded; the whole engine run at the cell centre, as up to
+   model version 0.3.0). For each: the hit rate over the stream (entries found / entries
+   asked for; every request has its own write bound, as in the service), entries stored,
+   engine rows computed, the time of the stream's first (cold) and second (warm) pass,
+   warm/cold, and the time without a cache.
+4. HTTP: ``POST /v1/irradiance`` of one fleet day (all 20 vans, 6 000 records) on one
+   gunicorn worker on loopback, cold and warm, for Redis, in-process and no cache, with
+   the default aerosol and with a client-measured aerosol.
 
 Redis is the server at $REDIS_URL or 127.0.0.1:6379. The benchmark claims a database of
 its own there the way the test suite does (``tests/redis_claim.py``: one of 1–15, empty,
@@ -30,71 +41,215 @@ never database 0), flushes only that one and gives it back empty at the end.
 """
 from __future__ import annotations
 
-import argparse
-import hashlib
-import json
 import os
-import socket
-import statistics
-import subprocess
-import sys
-import threading
-import time
-import urllib.request
-from datetime import datetime, timezone
-from pathlib import Path
 
-import numpy as np
+for _variable in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
+    os.environ[_variable] = "1"  # one core, as a server worker runs (service.server.pin_numeric_threads)
+
+import argparse  # noqa: E402
+import hashlib  # noqa: E402
+import json  # noqa: E402
+import socket  # noqa: E402
+import statistics  # noqa: E402
+import subprocess  # noqa: E402
+import sys  # noqa: E402
+import threading  # noqa: E402
+import time  # noqa: E402
+import urllib.request  # noqa: E402
+from dataclasses import dataclass  # noqa: E402
+from datetime import datetime, timezone  # noqa: E402
+from pathlib import Path  # noqa: E402
+
+import numpy as np  # noqa: E402
 
 REPO = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(REPO))
 
-from uvdose.service.cache import GridCellCache  # noqa: E402
+from uvdose.models import dose, engine  # noqa: E402
+from uvdose.service.cache import StateCache  # noqa: E402
 from uvdose.service.cache.byte_rows import distinct_rows, split_rows  # noqa: E402
 from uvdose.service.cache.memory_store import MemoryStore  # noqa: E402
+from uvdose.service.cache.physics_keys import PhysicsKeying  # noqa: E402
 from uvdose.service.cache.redis_store import RedisStore  # noqa: E402
 from tests.redis_claim import RedisDatabase, claim_database  # noqa: E402
 from timing import best_of  # noqa: E402  (this folder; see timing.py)
 
 REDIS_SERVER_URL = os.environ.get("REDIS_URL", "redis://127.0.0.1:6379")
-CONTEXT = "bench:spectra=erythema,actinic_icnirp,plant_damage"
+SPECTRA = ("erythema", "actinic_icnirp", "plant_damage")
+LARGE_LRU = 2_000_000  # the comparison of keys should not be one of eviction
 
 
-def scenario(records: int, cells: int, seed: int = 2026) -> dict[str, np.ndarray]:
-    """Records over ``cells`` distinct cells: orchards between 35° and 50° N on a
-    spring morning, several rows per cell, every cell used at least once."""
-    rng = np.random.default_rng(seed)
-    flat = rng.choice(300 * 600, cells, replace=False)
-    cell_lat = 35.0 + 0.05 * (flat // 600)
-    cell_lon = -10.0 + 0.05 * (flat % 600)
-    start = datetime(2026, 5, 20, 9, 0, tzinfo=timezone.utc).timestamp()
-    pick = rng.integers(0, cells, records)
-    pick[:cells] = np.arange(cells)
-    return {
-        "time_unix_s": start + 120.0 * (pick % 4) + rng.uniform(5, 115, records),
-        "latitude_deg": cell_lat[pick] + rng.uniform(0.002, 0.048, records),
-        "longitude_deg": cell_lon[pick] + rng.uniform(0.002, 0.048, records),
-    }
+# -- the streams ------------------------------------------------------------------------
+
+def _terrain_m(lat, lon, low, high):
+    """A smooth invented terrain between ``low`` and ``high`` metres."""
+    wave = np.sin(37.0 * lat) * np.cos(29.0 * lon) + 0.5 * np.sin(71.0 * (lat + lon))
+    return low + (high - low) * (wave + 1.5) / 3.0
 
 
-def bench_keys(columns: dict[str, np.ndarray], repeats: int) -> None:
-    cache = GridCellCache("memory")
+def fleet_requests(vans: int = 20, days: int = 31, step_min: float = 2.0) -> list[dict[str, np.ndarray]]:
+    """One request per van and day: its fixes from 08:00 to 18:00 local time (UTC+2)."""
+    rng = np.random.default_rng(7)
+    first_day = datetime(2026, 7, 1, 6, 0, tzinfo=timezone.utc).timestamp()
+    fixes = int(10 * 60 / step_min)
+    requests = []
+    for day in range(days):
+        for van in range(vans):
+            # A van wanders around the city: a random walk of 0–300 m per fix.
+            lat = 45.75 + np.cumsum(rng.normal(0, 0.0015, fixes)).clip(-0.05, 0.05)
+            lon = 4.85 + np.cumsum(rng.normal(0, 0.002, fixes)).clip(-0.07, 0.07)
+            times = first_day + day * 86_400 + np.arange(fixes) * step_min * 60 + rng.uniform(0, 30, fixes)
+            requests.append({"time_unix_s": times, "latitude_deg": lat, "longitude_deg": lon,
+                             "elevation_m": np.round(_terrain_m(lat, lon, 160, 320)),
+                             "surface_type": np.full(fixes, "asphalt", dtype=object)})
+    return requests
+
+
+def district_fields(fields: int = 150) -> dict[str, np.ndarray]:
+    rng = np.random.default_rng(8)
+    lat = 44.85 + rng.uniform(0, 0.18, fields)
+    lon = 4.85 + rng.uniform(0, 0.25, fields)
+    return {"latitude_deg": lat, "longitude_deg": lon,
+            "elevation_m": np.round(_terrain_m(lat, lon, 120, 260)),
+            "surface_type": np.full(fields, "grass", dtype=object)}
+
+
+SEASON_DAYS = np.arange(np.datetime64("2026-04-01"), np.datetime64("2026-10-01")).astype(
+    "datetime64[s]").astype(np.int64).astype(float)
+
+
+# -- the two keyings --------------------------------------------------------------------
+
+CELL_STEPS = {"elevation_m": 10.0, "pressure_hpa": 1.0, "ozone_du": 1.0, "aod_550": 0.01,
+              "angstrom_exponent": 0.05, "single_scattering_albedo": 0.002, "asymmetry_factor": 0.005,
+              "surface_albedo": 0.01, "cloud_modification_factor": 0.002, "tilt_deg": 1.0,
+              "receiver_azimuth_deg": 1.0, "sky_view_factor": 0.01}
+
+
+@dataclass(frozen=True)
+class CellKeying:
+    """The place-and-time keying the physics key replaced (its definition, for comparison):
+    0.05° cells from (−90°, −180°), 2-minute cells from the epoch, the other inputs
+    rounded to ``CELL_STEPS``; the engine runs on the cell centres."""
+
+    cell_deg: float = 0.05
+    cell_s: float = 120.0
+
+    def describe(self) -> str:
+        return f"cells;{self.cell_deg};{self.cell_s}"
+
+    def quantise(self, columns):
+        indices, centres = {}, {}
+        for name, raw in columns.items():
+            values = np.asarray(raw)
+            if values.dtype.kind in "OUS":
+                codes = np.unique(values.astype(str), return_inverse=True)[1].reshape(-1)
+                indices[name], centres[name] = codes.astype(np.int64), values
+                continue
+            values = values.astype(float)
+            nan = np.isnan(values)
+            given = np.where(nan, 0.0, values)
+            if name == "time_unix_s":
+                index = np.floor(given / self.cell_s)
+                centre = (index + 0.5) * self.cell_s
+            elif name == "latitude_deg":
+                index = np.floor((given + 90.0) / self.cell_deg)
+                centre = -90.0 + (index + 0.5) * self.cell_deg
+            elif name == "longitude_deg":
+                index = np.floor((given + 180.0) / self.cell_deg)
+                centre = -180.0 + (index + 0.5) * self.cell_deg
+            else:
+                step = CELL_STEPS[name]
+                index = np.floor(given / step + 0.5)
+                centre = index * step
+            indices[name] = np.where(nan, -(2**40), index).astype(np.int64)
+            centres[name] = np.where(nan, np.nan, centre)
+        return indices, centres
+
+
+def cell_keyed_evaluator(cache: StateCache, writes) -> dose.Evaluator:
+    """The whole engine through the cache, keyed on place-and-time cells."""
+    def whole_engine(columns):
+        return engine.compute(engine.Conditions.from_columns(columns), spectra=SPECTRA).as_columns()
+
+    return lambda columns: cache.compute_through(columns, whole_engine, "cells:" + ",".join(SPECTRA), writes)
+
+
+def physics_keyed_evaluator(cache: StateCache | None, writes) -> dose.Evaluator:
+    """The engine with its transfer through the cache (the service's way); None: no cache."""
+    memo = None
+    if cache is not None:
+        def memo(description, state, transfer):
+            return cache.compute_through(state, transfer, description, writes)
+
+    return dose.engine_evaluator(SPECTRA, transfer_memo=memo)
+
+
+def run_stream(stream: str, keying: str | None, cache: StateCache | None) -> float:
+    """One pass of ``stream`` (one request at a time); seconds."""
+    started = time.perf_counter()
+    if stream == "fleet":
+        for request in FLEET:
+            writes = cache.allowance() if cache is not None else None
+            evaluate = (cell_keyed_evaluator(cache, writes) if keying == "cell"
+                        else physics_keyed_evaluator(cache, writes))
+            evaluate(request)
+    else:
+        for field in range(len(DISTRICT["latitude_deg"])):
+            writes = cache.allowance() if cache is not None else None
+            evaluate = (cell_keyed_evaluator(cache, writes) if keying == "cell"
+                        else physics_keyed_evaluator(cache, writes))
+            one = {name: value[field:field + 1] for name, value in DISTRICT.items()}
+            dose.field_season(one, SEASON_DAYS, evaluate, spectra=list(SPECTRA))
+    return time.perf_counter() - started
+
+
+FLEET: list = []
+DISTRICT: dict = {}
+
+
+def bench_streams() -> None:
+    global FLEET, DISTRICT
+    FLEET = fleet_requests()
+    DISTRICT = district_fields()
+    records = {"fleet": sum(len(r["time_unix_s"]) for r in FLEET),
+               "district": len(DISTRICT["latitude_deg"]) * len(SEASON_DAYS) * 8}
+    print("streams through the engine, in-process cache, one request at a time:")
+    for stream in ("fleet", "district"):
+        uncached = run_stream(stream, None, None)
+        print(f"  {stream}: {records[stream]} records, no cache {uncached:.2f} s")
+        for keying in ("cell", "physics"):
+            cache = StateCache("memory", keying=CellKeying() if keying == "cell" else PhysicsKeying(),
+                               max_entries=LARGE_LRU)
+            cold = run_stream(stream, keying, cache)
+            hits, misses, unstored = cache.stats["hit"], cache.stats["miss"], cache.stats["unstored"]
+            warm = run_stream(stream, keying, cache)
+            print(f"    {keying:7s} key: hit rate {hits / (hits + misses):6.1%} ({hits} of {hits + misses} entries"
+                  f" asked; {misses} computed, {unstored} not stored), {len(cache.store)} entries stored;"
+                  f" cold {cold:6.2f} s, warm {warm:6.2f} s, warm/cold {cold / warm:4.1f}x,"
+                  f" no cache/cold {uncached / cold:4.1f}x")
+
+
+def bench_keys(repeats: int) -> None:
+    columns = fleet_requests(vans=34, days=1)
+    columns = {k: np.concatenate([r[k] for r in columns])[:10_000] for k in columns[0]}
+    _, state, _, _ = engine.transfer_state(engine.Conditions.from_columns(columns))
+    cache = StateCache("memory")
 
     def ours():
-        indices, _ = cache.grid.quantise(columns)
-        matrix = cache.key_rows(indices, CONTEXT)
+        indices, _ = cache.keying.quantise(state)
+        matrix = cache.key_rows(indices, "bench")
         first, _ = distinct_rows(matrix)
         split_rows(matrix[first])
 
     def loop_baseline():
-        stacked = np.column_stack([columns[k] for k in sorted(columns)])
+        stacked = np.column_stack([state[k] for k in sorted(state)])
         {hashlib.blake2b(row.tobytes(), digest_size=16).digest() for row in stacked}
 
     baseline = best_of(repeats, loop_baseline)
     measured = best_of(repeats, ours)
-    n = len(columns["time_unix_s"])
-    print(f"keys for {n} records: {measured * 1e3:.2f} ms (per-record blake2b loop {baseline * 1e3:.2f} ms,"
-          f" ratio {baseline / measured:.1f}x)")
+    print(f"keys for {len(state['ozone_du'])} records: {measured * 1e3:.2f} ms (per-record blake2b loop"
+          f" {baseline * 1e3:.2f} ms, ratio {baseline / measured:.1f}x)")
 
 
 class _LibraryStore:
@@ -165,7 +320,7 @@ def bench_redis_store(database: RedisDatabase, repeats: int) -> None:
     rng = np.random.default_rng(8)
     print(f"Redis store against redis-py on the claimed database {database.db} (best of {repeats}):")
     for count in (500, 10_000):
-        keys = [b"uvdose:c:" + rng.bytes(80) for _ in range(count)]
+        keys = [b"uvdose:s:" + rng.bytes(42) for _ in range(count)]
         values = [rng.bytes(80) for _ in range(count)]
 
         def pipeline_sets():
@@ -186,32 +341,6 @@ def bench_redis_store(database: RedisDatabase, repeats: int) -> None:
         database.flush()
 
 
-def bench_direct(columns: dict[str, np.ndarray], repeats: int, database: RedisDatabase) -> None:
-    from uvdose.models import engine
-
-    def compute(cols):
-        return engine.compute(engine.Conditions.from_columns(cols)).as_columns()
-
-    compute({k: v[:50] for k, v in columns.items()})  # load tables once
-    # A first compute_through warms numpy's and the engine's lazy set-up.
-    GridCellCache("memory").compute_through(scenario(20, 5, seed=3), compute, "bench:warm-up")
-    uncached = best_of(1, lambda: compute(columns))
-    print(f"engine, uncached, {len(columns['time_unix_s'])} records: {uncached * 1e3:.1f} ms")
-    for backend in ("redis", "memory"):
-        cache = GridCellCache(backend, redis_url=database.url)
-        if backend == "redis":
-            database.flush()
-        cold = best_of(1, lambda: cache.compute_through(columns, compute, CONTEXT))
-        warm = best_of(repeats, lambda: cache.compute_through(columns, compute, CONTEXT))
-        print(f"compute_through {backend:6s}: cold {cold * 1e3:7.1f} ms, warm {warm * 1e3:6.1f} ms,"
-              f" warm/cold {cold / warm:5.1f}x, uncached/warm {uncached / warm:5.1f}x")
-        if backend == "redis":
-            client = cache.store.client
-            sizes = [client.memory_usage(k) for k in client.scan_iter(b"uvdose:c:*", count=1000)][:200]
-            print(f"  Redis MEMORY USAGE per cell (engine defaults, no spectrum): median {statistics.median(sizes):.0f} B")
-            database.flush()
-
-
 def _free_port() -> int:
     with socket.socket() as s:
         s.bind(("127.0.0.1", 0))
@@ -226,32 +355,34 @@ def _post(url: str, body: bytes) -> tuple[int, float]:
         return reply.status, time.perf_counter() - started
 
 
-CLIENT_AEROSOL = {"angstrom_exponent": 1.0, "single_scattering_albedo": 0.85}
-"""A client-measured aerosol (an invented sun-photometer reading) outside the precomputed
-table's default aerosol type, so that the engine takes the full solve."""
+CLIENT_AEROSOL = {"aod_550": 0.32, "angstrom_exponent": 1.05, "single_scattering_albedo": 0.86,
+                  "asymmetry_factor": 0.68}
+"""A client-measured aerosol (an invented sun-photometer reading), not the engine's default."""
 
 
 def _body(columns: dict[str, np.ndarray], aerosol: dict[str, float] | None = None) -> bytes:
     times = [datetime.fromtimestamp(t, timezone.utc).isoformat() for t in columns["time_unix_s"]]
-    body = {"time": times, "lat": columns["latitude_deg"].tolist(), "lon": columns["longitude_deg"].tolist()}
+    body = {"time": times, "lat": columns["latitude_deg"].tolist(), "lon": columns["longitude_deg"].tolist(),
+            "elevation_m": columns["elevation_m"].tolist(), "surface_type": list(columns["surface_type"])}
     for name, value in (aerosol or {}).items():
         body[name] = [value] * len(times)
-    return json.dumps({"columns": body}).encode()
+    return json.dumps({"columns": body, "spectra": list(SPECTRA)}).encode()
 
 
-def bench_http(columns: dict[str, np.ndarray], repeats: int, database: RedisDatabase,
-               aerosol: dict[str, float] | None = None) -> None:
+def bench_http(repeats: int, database: RedisDatabase, aerosol: dict[str, float] | None = None) -> None:
+    day = fleet_requests(days=1)
+    columns = {k: np.concatenate([r[k] for r in day]) for k in day[0]}
     body = _body(columns, aerosol)
-    warmup = _body(scenario(200, 50, seed=1), aerosol)
-    print("HTTP, " + ("client aerosol (full solve per cell)" if aerosol
-                      else "default aerosol (precomputed-table engine path)"))
+    warmup = _body({k: v[:200] for k, v in fleet_requests(vans=1, days=1)[0].items()}, aerosol)
+    print(f"HTTP, one fleet day ({len(columns['time_unix_s'])} records), "
+          + ("client aerosol" if aerosol else "default aerosol"))
     uncached_s = None
     for backend in ("off", "redis", "memory"):
         port = _free_port()
-        # The uncached client-aerosol run sends all 10 000 records to the full solve, past the
-        # service's default bound on such records per request: lift it for the measurement.
+        # A client-aerosol run may need the full solve for every record, past the service's
+        # default bound on such records per request: lift it for the measurement.
         env = {**os.environ, "UVDOSE_CACHE": backend, "REDIS_URL": database.url,
-               "UVDOSE_MAX_FULL_SOLVE_RECORDS": "100000"}
+               "UVDOSE_MAX_FULL_SOLVE_RECORDS": "1000000"}
         env.pop("PROMETHEUS_MULTIPROC_DIR", None)
         process = subprocess.Popen(
             [sys.executable, "-m", "gunicorn", "--workers", "1", "--bind", f"127.0.0.1:{port}",
@@ -272,6 +403,8 @@ def bench_http(columns: dict[str, np.ndarray], repeats: int, database: RedisData
             if backend == "redis":
                 database.flush()
             _post(base + "/v1/irradiance", warmup)  # loads the engine's tables in the worker
+            if backend == "redis":
+                database.flush()
             status, cold = _post(base + "/v1/irradiance", body)
             warm = min(_post(base + "/v1/irradiance", body)[1] for _ in range(repeats))
             if backend == "off":
@@ -279,6 +412,10 @@ def bench_http(columns: dict[str, np.ndarray], repeats: int, database: RedisData
                 note = "  (no cache: every run computes all records)"
             else:
                 note = f", uncached/warm {uncached_s / warm:5.1f}x"
+            if backend == "redis":
+                client = database.client()
+                sizes = [client.memory_usage(k) for k in client.scan_iter(b"uvdose:s:*", count=1000)][:300]
+                note += f"; Redis MEMORY USAGE per entry: median {statistics.median(sizes):.0f} B"
             print(f"HTTP {backend:6s}: status {status}, cold {cold * 1e3:7.1f} ms, warm {warm * 1e3:7.1f} ms,"
                   f" warm/cold {cold / warm:5.1f}x{note}")
         finally:
@@ -288,25 +425,24 @@ def bench_http(columns: dict[str, np.ndarray], repeats: int, database: RedisData
 
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--records", type=int, default=10_000)
-    parser.add_argument("--cells", type=int, default=500)
     parser.add_argument("--repeats", type=int, default=3)
     parser.add_argument("--skip-http", action="store_true")
+    parser.add_argument("--skip-streams", action="store_true")
     parser.add_argument("--stores-only", action="store_true", help="only the store comparisons (part 2)")
     args = parser.parse_args()
-    columns = scenario(args.records, args.cells)
     database = claim_database(REDIS_SERVER_URL)
     try:
         if not args.stores_only:
-            bench_keys(columns, args.repeats)
+            bench_keys(args.repeats)
         bench_memory_store(max(args.repeats, 7))
         bench_redis_store(database, max(args.repeats, 7))
         if args.stores_only:
             return
-        bench_direct(columns, args.repeats, database)
+        if not args.skip_streams:
+            bench_streams()
         if not args.skip_http:
-            bench_http(columns, args.repeats, database)
-            bench_http(columns, args.repeats, database, CLIENT_AEROSOL)
+            bench_http(args.repeats, database)
+            bench_http(args.repeats, database, CLIENT_AEROSOL)
     finally:
         database.release()
 

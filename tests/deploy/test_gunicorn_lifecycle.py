@@ -140,7 +140,7 @@ def test_sigterm_lets_the_in_flight_request_finish_and_exits_cleanly(tmp_path):
 
 
 def _daytime_batch(size: int) -> bytes:
-    """Distinct grid cells around solar noon over southern Europe (an invented survey grid)."""
+    """Distinct places around solar noon over southern Europe (an invented survey grid)."""
     records = [{"id": f"plot-{i}", "time": f"2026-06-21T11:{i % 60:02d}:00Z",
                 "lat": round(36.0 + (i // 100) * 0.25, 3), "lon": round(-5.0 + (i % 100) * 0.25, 3)}
                for i in range(size)]

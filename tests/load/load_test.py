@@ -16,7 +16,7 @@ Not collected by pytest (no ``test_`` prefix). What it does:
    and the cache counters from /metrics, and exits 1 if any request failed.
 
 Scenario (invented for this test): a courier fleet and a vineyard cooperative in the
-same valley ask for the same hours of one July day, so grid cells repeat across
+same valley ask for the same hours of one July day, so physics states repeat across
 requests and the cache has something to do.
 """
 from __future__ import annotations

@@ -2,7 +2,7 @@
 
 Each test runs a throwaway ``redis-server`` on a free loopback port, so it can be stopped
 and started without touching the shared test server. Whatever Redis does, every batch must
-be answered with exactly what the uncached engine gives for the cell-centre inputs.
+be answered with exactly what the uncached transfer gives for the rounded states.
 """
 from __future__ import annotations
 
@@ -22,9 +22,9 @@ import pytest
 import redis
 
 from uvdose.service.app import create_app
-from uvdose.service.cache import GridCellCache
+from uvdose.service.cache import PhysicsKeying, StateCache
 from uvdose.service.cache.breaker import Breaker
-from tests.service.test_cache import CONTEXT, RecordingEngine, assert_same, batch, expected
+from tests.service.test_cache import CONTEXT, RecordingTransfer, assert_same, batch, expected
 
 pytestmark = pytest.mark.skipif(shutil.which("redis-server") is None, reason="needs the redis-server binary")
 
@@ -76,44 +76,44 @@ def throwaway_redis():
     server.stop()
 
 
-def _answered_correctly(cache: GridCellCache, columns, engine) -> float:
+def _answered_correctly(cache: StateCache, columns, transfer) -> float:
     started = time.perf_counter()
-    result = cache.compute_through(columns, engine, CONTEXT)
+    result = cache.compute_through(columns, transfer, CONTEXT)
     elapsed = time.perf_counter() - started
     assert_same(result, expected(cache, columns))
     return elapsed
 
 
 def test_stopped_then_restarted_server(throwaway_redis):
-    engine = RecordingEngine()
-    cache = GridCellCache("redis", redis_url=throwaway_redis.url, **FAST)
-    columns = batch(1000, cells=40, seed=11)
+    transfer = RecordingTransfer()
+    cache = StateCache("redis", redis_url=throwaway_redis.url, **FAST)
+    columns = batch(1000, states=40, seed=11)
 
-    _answered_correctly(cache, columns, engine)
-    _answered_correctly(cache, columns, engine)
-    assert engine.calls == [40] and cache.stats["error"] == 0
+    _answered_correctly(cache, columns, transfer)
+    _answered_correctly(cache, columns, transfer)
+    assert transfer.calls == [40] and cache.stats["error"] == 0
 
     throwaway_redis.stop()
-    # Down: answered from the engine, the fault counted once, then the breaker skips Redis.
+    # Down: answered from the transfer, the fault counted once, then the breaker skips Redis.
     for _ in range(5):
-        assert _answered_correctly(cache, columns, engine) < 1.0
-    assert engine.calls == [40] * 6
+        assert _answered_correctly(cache, columns, transfer) < 1.0
+    assert transfer.calls == [40] * 6
     assert cache.stats["error"] == 1
     status = cache.status()
     assert status["answers"] is False and status["breaker"] == "open"
 
     throwaway_redis.start()
     time.sleep(FAST["retry_initial_s"] + 0.05)
-    # Back: the first batch after the backoff reconnects by itself and refills the cells.
-    _answered_correctly(cache, columns, engine)
-    _answered_correctly(cache, columns, engine)
-    assert engine.calls == [40] * 7
+    # Back: the first batch after the backoff reconnects by itself and refills the entries.
+    _answered_correctly(cache, columns, transfer)
+    _answered_correctly(cache, columns, transfer)
+    assert transfer.calls == [40] * 7
     assert cache.stats["error"] == 1
     assert cache.status()["answers"] is True
 
 
 def test_readiness_probe_sees_the_outage_and_the_recovery_without_traffic(throwaway_redis):
-    cache = GridCellCache("redis", redis_url=throwaway_redis.url, **FAST)
+    cache = StateCache("redis", redis_url=throwaway_redis.url, **FAST)
     assert cache.status()["answers"] is True
     throwaway_redis.stop()
     down = cache.status()
@@ -126,30 +126,30 @@ def test_readiness_probe_sees_the_outage_and_the_recovery_without_traffic(throwa
 
 
 def test_restarts_during_a_load_of_many_batches(throwaway_redis):
-    engine = RecordingEngine()
-    cache = GridCellCache("redis", redis_url=throwaway_redis.url, **FAST)
-    batches = [batch(300, cells=15, seed=seed % 4) for seed in range(24)]
+    transfer = RecordingTransfer()
+    cache = StateCache("redis", redis_url=throwaway_redis.url, **FAST)
+    batches = [batch(300, states=15, seed=seed % 4) for seed in range(24)]
     for number, columns in enumerate(batches):
         if number in (6, 14):
             throwaway_redis.stop()
         if number in (10, 18):
             throwaway_redis.start()
             time.sleep(FAST["retry_initial_s"] + 0.05)
-        _answered_correctly(cache, columns, engine)
+        _answered_correctly(cache, columns, transfer)
     assert cache.stats["error"] == 2
     assert cache.stats["hit"] > 0
 
 
 def test_paused_server_costs_one_timeout_then_is_skipped(throwaway_redis):
-    engine = RecordingEngine()
-    cache = GridCellCache("redis", redis_url=throwaway_redis.url, **FAST)
-    columns = batch(500, cells=20, seed=12)
-    _answered_correctly(cache, columns, engine)
+    transfer = RecordingTransfer()
+    cache = StateCache("redis", redis_url=throwaway_redis.url, **FAST)
+    columns = batch(500, states=20, seed=12)
+    _answered_correctly(cache, columns, transfer)
 
     throwaway_redis.client().execute_command("CLIENT", "PAUSE", "3000", "ALL")
-    first = _answered_correctly(cache, columns, engine)
+    first = _answered_correctly(cache, columns, transfer)
     assert first < 1.0  # bounded by the 0.2 s read timeout, not by the 3 s pause
-    later = _answered_correctly(cache, columns, engine)
+    later = _answered_correctly(cache, columns, transfer)
     assert later < 0.2
     assert cache.stats["error"] == 1
     assert cache.status()["breaker"] == "open"
@@ -159,19 +159,19 @@ def test_full_server_refusing_writes_still_answers(throwaway_redis):
     admin = throwaway_redis.client()
     admin.config_set("maxmemory-policy", "noeviction")
     admin.config_set("maxmemory", "1")  # every write is refused with OOM
-    engine = RecordingEngine()
-    cache = GridCellCache("redis", redis_url=throwaway_redis.url, **FAST)
-    columns = batch(500, cells=20, seed=13)
-    _answered_correctly(cache, columns, engine)
+    transfer = RecordingTransfer()
+    cache = StateCache("redis", redis_url=throwaway_redis.url, **FAST)
+    columns = batch(500, states=20, seed=13)
+    _answered_correctly(cache, columns, transfer)
     assert cache.stats["error"] == 1
     assert admin.dbsize() == 0
 
 
 def test_nothing_listening_is_a_fast_fault():
-    engine = RecordingEngine()
-    cache = GridCellCache("redis", redis_url=f"redis://127.0.0.1:{_free_port()}/0", **FAST)
-    assert _answered_correctly(cache, batch(200, cells=10), engine) < 1.0
-    assert cache.stats == {"hit": 0, "miss": 10, "error": 1}
+    transfer = RecordingTransfer()
+    cache = StateCache("redis", redis_url=f"redis://127.0.0.1:{_free_port()}/0", **FAST)
+    assert _answered_correctly(cache, batch(200, states=10), transfer) < 1.0
+    assert cache.stats == {"hit": 0, "miss": 10, "error": 1, "unstored": 0}
 
 
 def test_breaker_backoff_doubles_and_resets():
@@ -197,19 +197,20 @@ def test_breaker_backoff_doubles_and_resets():
 
 # -- through the app: POST /v1/irradiance ---------------------------------------------
 
-def _irradiance_body(n: int, cells: int, seed: int) -> dict:
-    """Whole-second times (so ISO 8601 text round-trips exactly), one farm region."""
-    columns = batch(n, cells=cells, seed=seed)
-    times = np.round(columns["time_unix_s"])
+def _irradiance_body(n: int, seed: int) -> dict:
+    """Whole-second times (so ISO 8601 text round-trips exactly), one farm region, a summer week."""
+    rng = np.random.default_rng(seed)
+    times = np.round(1_781_000_000 + rng.uniform(0, 7 * 86_400, n))
     return {"columns": {
         "time": [datetime.fromtimestamp(t, timezone.utc).isoformat() for t in times],
-        "lat": columns["latitude_deg"].tolist(),
-        "lon": columns["longitude_deg"].tolist(),
-        "ozone_du": [None if np.isnan(v) else float(v) for v in columns["ozone_du"]],
+        "lat": (44.0 + rng.uniform(0, 0.2, n)).tolist(),
+        "lon": (4.8 + rng.uniform(0, 0.2, n)).tolist(),
+        "ozone_du": [None if i % 3 == 0 else float(280 + i % 4 * 10) for i in range(n)],
     }, "spectra": ["erythema", "plant_damage"]}
 
 
-def _uncached_cell_centre_uvi(cache: GridCellCache, body: dict) -> np.ndarray:
+def _uncached_rounded_state_uvi(body: dict) -> np.ndarray:
+    """The engine without a cache, its transfer run on the rounded states."""
     from uvdose.models import engine
 
     given = body["columns"]
@@ -219,8 +220,12 @@ def _uncached_cell_centre_uvi(cache: GridCellCache, body: dict) -> np.ndarray:
         "longitude_deg": np.array(given["lon"]),
         "ozone_du": np.array([np.nan if v is None else v for v in given["ozone_du"]]),
     }
-    centres = cache.grid.cell_centres(columns)
-    return engine.compute(engine.Conditions.from_columns(centres), spectra=body["spectra"]).uv_index
+
+    def rounded(description, state, transfer):
+        return transfer(PhysicsKeying().quantise(state)[1])
+
+    return engine.compute(engine.Conditions.from_columns(columns), spectra=body["spectra"],
+                          transfer_memo=rounded).uv_index
 
 
 FAULT_SETTINGS = {"UVDOSE_REDIS_TIMEOUT_S": "0.2", "UVDOSE_REDIS_CONNECT_TIMEOUT_S": "0.2",
@@ -232,8 +237,8 @@ def test_irradiance_route_answers_through_redis_faults(throwaway_redis):
                       **FAULT_SETTINGS})
     cache = app.extensions["uvdose_cache"]
     client = app.test_client()
-    body = _irradiance_body(200, cells=10, seed=14)
-    reference = _uncached_cell_centre_uvi(cache, body)
+    body = _irradiance_body(200, seed=14)
+    reference = _uncached_rounded_state_uvi(body)
 
     def ask():
         reply = client.post("/v1/irradiance", json=body)
@@ -270,7 +275,7 @@ def test_gunicorn_serves_through_a_stopped_and_restarted_redis(throwaway_redis, 
         cwd=Path(__file__).resolve().parents[2], env=env, stdout=subprocess.DEVNULL, stderr=log,
     )
     base = f"http://127.0.0.1:{port}"
-    body = json.dumps(_irradiance_body(100, cells=8, seed=15)).encode()
+    body = json.dumps(_irradiance_body(100, seed=15)).encode()
 
     def ask() -> list[float]:
         request = urllib.request.Request(base + "/v1/irradiance", data=body,
@@ -283,13 +288,15 @@ def test_gunicorn_serves_through_a_stopped_and_restarted_redis(throwaway_redis, 
         wait_until_answers(base + "/livez", server)
         first = ask()
         assert ask() == first  # a hit
+        entries = len(throwaway_redis.client().keys(b"uvdose:s:*"))
+        assert entries > 10
         throwaway_redis.stop()
         assert ask() == first and ask() == first
         throwaway_redis.start()
         time.sleep(0.35)
         assert ask() == first and ask() == first
-        cells = throwaway_redis.client().keys(b"uvdose:c:*")
-        assert len(cells) == 8  # the worker reconnected by itself and refilled the cells
+        # The worker reconnected by itself and refilled the entries.
+        assert len(throwaway_redis.client().keys(b"uvdose:s:*")) == entries
     finally:
         stop(server)
         log.close()

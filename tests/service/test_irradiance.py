@@ -20,8 +20,8 @@ ORCHARD = {"time": "2026-06-21T13:30:00+02:00", "lat": 44.05, "lon": 4.92, "elev
 
 @pytest.fixture
 def exact(make_app, contract_client_for):
-    """A client with the grid-cell cache off, so results are for the exact inputs
-    (the cache computes at cell centres: 0.05° and 2 min by default)."""
+    """A client with the cache off, so results are for the exact inputs (the cache
+    computes the transfer of rounded physics states)."""
     return contract_client_for(make_app(UVDOSE_CACHE="off"))
 
 

@@ -1,4 +1,4 @@
-"""The grid-cell cache that wraps the engine call (see the package docstring)."""
+"""The physics-state cache that wraps the engine's radiative transfer (see the package docstring)."""
 from __future__ import annotations
 
 import logging
@@ -11,10 +11,10 @@ import numpy as np
 from uvdose import models
 from uvdose.service.cache.breaker import Breaker
 from uvdose.service.cache.byte_rows import distinct_rows, split_rows
-from uvdose.service.cache.cells import CellGrid, Keying
 from uvdose.service.cache.codec import Layout, decode, encode, layout_digest_of
 from uvdose.service.cache.keys import key_matrix, layout_key
 from uvdose.service.cache.memory_store import MemoryStore
+from uvdose.service.cache.physics_keys import Keying, PhysicsKeying
 from uvdose.service.cache.redis_store import RedisStore
 
 log = logging.getLogger("uvdose.cache")
@@ -28,22 +28,46 @@ def _ignore(*_: Any) -> None:
     pass
 
 
-class GridCellCache:
-    """Caches engine results per grid cell; see the package docstring.
+class WriteAllowance:
+    """How many new entries one request may still write (``None``: no bound).
 
-    ``backend`` is ``"redis"``, ``"memory"`` or ``"off"``. With ``"off"`` the engine sees
-    the records' exact inputs; otherwise it always sees cell-centre inputs. ``count``
-    is told every lookup outcome (``"hit"``, ``"miss"``, ``"error"``, and how many) and
-    ``observe_latency`` the seconds of every backend call, e.g. to feed metrics.
+    One allowance is made per request and passed to every ``compute_through`` of that
+    request, so that a request cannot fill the backend and evict every other client's
+    entries: what it computes beyond the allowance it answers without storing."""
+
+    def __init__(self, entries: int | None):
+        self.left = entries
+        self._lock = threading.Lock()
+
+    def take(self, wanted: int) -> int:
+        """Reserve up to ``wanted`` entries; returns how many may be written."""
+        if self.left is None:
+            return wanted
+        with self._lock:
+            granted = min(wanted, self.left)
+            self.left -= granted
+        return granted
+
+
+class StateCache:
+    """Caches transfer results per physics state; see the package docstring.
+
+    ``backend`` is ``"redis"``, ``"memory"`` or ``"off"``. With ``"off"`` the transfer sees
+    the records' exact states; otherwise it always sees the rounded states of ``keying``.
+    ``max_writes`` bounds the entries one request writes (see :meth:`allowance`).
+    ``count`` is told every lookup outcome (``"hit"``, ``"miss"``, ``"error"``,
+    ``"unstored"``, and how many) and ``observe_latency`` the seconds of every backend
+    call, e.g. to feed metrics.
     """
 
     def __init__(
         self,
         backend: str = "memory",
-        grid: Keying | None = None,
+        keying: Keying | None = None,
         redis_url: str | None = None,
         ttl_s: float = 86_400.0,
         max_entries: int = 50_000,
+        max_writes: int | None = 10_000,
         prefix: str = "uvdose:",
         connect_timeout_s: float = 0.25,
         timeout_s: float = 0.5,
@@ -58,7 +82,8 @@ class GridCellCache:
         if backend == "redis" and not redis_url:
             raise ValueError("the redis backend needs a redis_url")
         self.backend = backend
-        self.grid = grid or CellGrid()
+        self.keying = keying or PhysicsKeying()
+        self.max_writes = max_writes
         self.prefix = prefix.encode("utf-8")
         self.breaker = Breaker(retry_initial_s, retry_max_s, clock)
         self._layouts: dict[bytes, Layout] = {}
@@ -69,30 +94,37 @@ class GridCellCache:
             self.store = MemoryStore(max_entries, ttl_s, clock)
         self._count_outcome, self._observe_latency = count, observe_latency
         self._stats_lock = threading.Lock()
-        self.stats = {"hit": 0, "miss": 0, "error": 0}
+        self.stats = {"hit": 0, "miss": 0, "error": 0, "unstored": 0}
 
     # -- the API -------------------------------------------------------------------------
 
-    def compute_through(self, columns: Mapping[str, np.ndarray], compute: ComputeFn, context: str) -> Columns:
+    def allowance(self) -> WriteAllowance:
+        """A fresh write allowance of ``max_writes`` entries, for one request."""
+        return WriteAllowance(self.max_writes)
+
+    def compute_through(self, columns: Mapping[str, np.ndarray], compute: ComputeFn, context: str,
+                        writes: WriteAllowance | None = None) -> Columns:
         """Results of ``compute`` for every record of ``columns``, in record order.
 
-        ``columns`` are (N,) input arrays named as in ``models.engine.Conditions``;
-        ``compute`` maps a dict of such columns to a dict of (M, …) result arrays;
-        ``context`` holds every request-wide option that changes the results. Records of one
-        cell share one engine run on the cell-centre inputs; ``compute`` is called once, on
-        the cells not found in the backend.
+        ``columns`` are (N,) state arrays (``models.engine.TRANSFER_STATE_COLUMNS``);
+        ``compute`` maps a dict of such columns to a dict of (M,) result arrays;
+        ``context`` names everything besides the state that changes the results. Records
+        of one rounded state share one ``compute`` run on that state; ``compute`` is
+        called once, on the states not found in the backend. ``writes`` bounds what this
+        call stores (default: a fresh :meth:`allowance`); the entries used by the most
+        records are stored first.
         """
         if self.store is None or not columns or len(next(iter(columns.values()))) == 0:
             return compute(dict(columns))
-        quantised = self.grid.quantise(columns)
+        quantised = self.keying.quantise(columns)
         if quantised is None:
             return compute(dict(columns))
         indices, centres = quantised
         keys_matrix = self.key_rows(indices, context)
         first, inverse = distinct_rows(keys_matrix)
-        cell_rows = keys_matrix[first]
-        keys = split_rows(cell_rows)
-        cell_inputs = {name: value[first] for name, value in centres.items()}
+        entry_rows = keys_matrix[first]
+        keys = split_rows(entry_rows)
+        entry_inputs = {name: value[first] for name, value in centres.items()}
 
         cached = self._fetch(keys)
         if cached is None:
@@ -105,34 +137,38 @@ class GridCellCache:
         parts: list[tuple[np.ndarray, Columns]] = []
         if len(hit_at):
             try:
-                parts, unsound = self._decode_hits([cached[i] for i in hit_at], hit_at, cell_rows)
+                parts, unsound = self._decode_hits([cached[i] for i in hit_at], hit_at, entry_rows)
             except Exception as error:  # a value that passed its checks but will not decode
-                log.warning("cached cells would not decode (%s: %s); recomputing them", type(error).__name__, error)
+                log.warning("cached entries would not decode (%s: %s); recomputing them", type(error).__name__, error)
                 parts, unsound = [], hit_at
             if len(unsound):
                 self._count(error=1)
                 miss_at = np.sort(np.concatenate([miss_at, unsound]))
                 hit_at = np.setdiff1d(hit_at, unsound)
+        users = np.bincount(inverse, minlength=len(keys))
+        writes = writes if writes is not None else self.allowance()
         if len(miss_at):
-            parts.append((miss_at, self._computed(compute, cell_inputs, miss_at, cell_rows, keys)))
+            parts.append((miss_at, self._computed(compute, entry_inputs, miss_at, entry_rows, keys,
+                                                  users, writes)))
         names = set(parts[0][1])
         if any(set(p[1]) != names for p in parts):
-            # Cached cells of another column set (not expected for one context): recompute all.
-            log.warning("cached cells disagree with the engine's columns; recomputing the batch")
+            # Cached entries of another column set (not expected for one context): recompute all.
+            log.warning("cached entries disagree with the transfer's columns; recomputing the batch")
             everything = np.arange(len(keys))
-            parts = [(everything, self._computed(compute, cell_inputs, everything, cell_rows, keys))]
+            parts = [(everything, self._computed(compute, entry_inputs, everything, entry_rows, keys,
+                                                 users, writes))]
         self._count(hit=len(hit_at), miss=len(miss_at))
         return _assemble(parts, len(keys), inverse)
 
     def key_rows(self, indices: Mapping[str, np.ndarray], context: str) -> np.ndarray:
-        """The cell keys (as a byte matrix, one row per record) of records with cell
+        """The entry keys (as a byte matrix, one row per record) of records with step
         ``indices`` under ``context``; ``models.MODEL_VERSION`` is part of every key."""
-        return key_matrix(self.prefix, (models.MODEL_VERSION, context, self.grid.describe()), indices)
+        return key_matrix(self.prefix, (models.MODEL_VERSION, context, self.keying.describe()), indices)
 
-    def cell_centres(self, columns: Mapping[str, np.ndarray]) -> dict[str, np.ndarray]:
-        """The inputs the engine is run on for ``columns`` (cell centres), e.g. to report
-        the cell used, or to reproduce a cached result without the cache."""
-        quantised = None if self.store is None else self.grid.quantise(columns)
+    def rounded_state(self, columns: Mapping[str, np.ndarray]) -> dict[str, np.ndarray]:
+        """The state the transfer is run on for ``columns`` (rounded), e.g. to reproduce a
+        cached result without the cache."""
+        quantised = None if self.store is None else self.keying.quantise(columns)
         if quantised is None:
             return {name: np.asarray(value) for name, value in columns.items()}
         return quantised[1]
@@ -158,14 +194,22 @@ class GridCellCache:
 
     # -- internals -----------------------------------------------------------------------
 
-    def _computed(self, compute: ComputeFn, cell_inputs: Columns, at: np.ndarray,
-                  cell_rows: np.ndarray, keys: list[bytes]) -> Columns:
-        """Run the engine on cells ``at``, store them, return them as a hit would."""
-        fresh = compute({name: value[at] for name, value in cell_inputs.items()})
-        layout, values = encode(fresh, cell_rows[at])
+    def _computed(self, compute: ComputeFn, entry_inputs: Columns, at: np.ndarray,
+                  entry_rows: np.ndarray, keys: list[bytes], users: np.ndarray,
+                  writes: WriteAllowance) -> Columns:
+        """Run the transfer on entries ``at``, store as many as the allowance lets (those
+        most records use first), return them as a hit would."""
+        fresh = compute({name: value[at] for name, value in entry_inputs.items()})
+        layout, values = encode(fresh, entry_rows[at])
         self._layouts[layout.digest] = layout
-        self._store([keys[i] for i in at], values, layout)
-        return decode(layout, values, cell_rows[at])[1]
+        granted = writes.take(len(at))
+        if granted:
+            keep = (np.arange(len(at)) if granted == len(at)
+                    else np.sort(np.argsort(-users[at], kind="stable")[:granted]))
+            self._store([keys[at[i]] for i in keep], [values[i] for i in keep], layout)
+        if granted < len(at):
+            self._count(unstored=len(at) - granted)
+        return decode(layout, values, entry_rows[at])[1]
 
     def _fetch(self, keys: list[bytes]) -> list[bytes | None] | None:
         """Values for ``keys`` (None where absent or unusable), or None if the backend failed."""
@@ -182,7 +226,7 @@ class GridCellCache:
                         layout = Layout.from_json(data)
                         if layout.digest == digest:
                             self._layouts[digest] = layout
-        except Exception as error:  # any backend fault: answer from the engine instead
+        except Exception as error:  # any backend fault: answer from the transfer instead
             self._fault(error)
             return None
         self.breaker.success()
@@ -191,7 +235,7 @@ class GridCellCache:
         return [v if v is not None and sizes.get(layout_digest_of(v)) == len(v) else None for v in values]
 
     def _decode_hits(self, values: list[bytes], positions: np.ndarray,
-                     cell_rows: np.ndarray) -> tuple[list[tuple[np.ndarray, Columns]], np.ndarray]:
+                     entry_rows: np.ndarray) -> tuple[list[tuple[np.ndarray, Columns]], np.ndarray]:
         """Decoded hits grouped by layout, and the positions whose check failed."""
         by_layout: dict[bytes, list[int]] = {}
         for index, value in enumerate(values):
@@ -199,7 +243,7 @@ class GridCellCache:
         parts, unsound = [], []
         for digest, members in by_layout.items():
             at = positions[members]
-            sound, columns = decode(self._layouts[digest], [values[i] for i in members], cell_rows[at])
+            sound, columns = decode(self._layouts[digest], [values[i] for i in members], entry_rows[at])
             parts.append((at[sound], columns))
             unsound.append(at[~sound])
         return parts, np.concatenate(unsound)
@@ -234,11 +278,11 @@ class GridCellCache:
                 self._count_outcome(event, amount)
 
 
-def _assemble(parts: list[tuple[np.ndarray, Columns]], cells: int, inverse: np.ndarray) -> Columns:
-    """Merge per-cell parts (positions, columns) into cell order, then expand to records."""
+def _assemble(parts: list[tuple[np.ndarray, Columns]], entries: int, inverse: np.ndarray) -> Columns:
+    """Merge per-entry parts (positions, columns) into entry order, then expand to records."""
     positions = np.concatenate([p for p, _ in parts])
     order = np.argsort(positions, kind="stable")
-    assert len(positions) == cells and (positions[order] == np.arange(cells)).all()
+    assert len(positions) == entries and (positions[order] == np.arange(entries)).all()
     merged: Columns = {}
     for name in parts[0][1]:
         stacked = np.concatenate([columns[name] for _, columns in parts])
