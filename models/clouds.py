@@ -63,6 +63,11 @@ MIN_SOLAR_ELEVATION_FOR_CLEAR_SKY_INDEX_DEG = 5.0
 """Below this solar elevation the clear-sky reference is too small for the ratio to mean
 anything (common practice, no source); the CMF is NaN there = "not determinable"."""
 
+# Extraterrestrial normal irradiance at 1 AU that the simplified Solis fit is evaluated
+# with, W m⁻²: pvlib's default for ``simplified_solis`` (1364), inside the 1361-1367 of
+# the solar constants in use; within 0.2 % of the TSI of Kopp & Lean (2011), 1360.8.
+SOLIS_EXTRATERRESTRIAL_W_M2 = 1364.0
+
 
 def cmf_from_value(cloud_modification_factor) -> np.ndarray:
     """Validate client CMFs (N,) in [0, 1.5]; NaN passes through as "not given"."""
@@ -98,18 +103,26 @@ def cmf_from_cloud_fraction(cloud_fraction, a: float = KASTEN_CZEPLAK_A,
 
 
 def clear_sky_global_horizontal_w_m2(solar_zenith_deg, pressure_hpa=1013.25,
-                                     aod_700=0.1, precipitable_water_cm=1.0) -> np.ndarray:
+                                     aod_700=0.1, precipitable_water_cm=1.0,
+                                     earth_sun_distance_au=1.0) -> np.ndarray:
     """Broadband clear-sky global horizontal irradiance, W m⁻² (simplified Solis,
-    Ineichen 2008, via ``pvlib.clearsky.simplified_solis``); zero with the sun down."""
+    Ineichen 2008, via ``pvlib.clearsky.simplified_solis``); zero with the sun down.
+
+    The extraterrestrial irradiance is ``SOLIS_EXTRATERRESTRIAL_W_M2`` at 1 AU, scaled by
+    the inverse square of ``earth_sun_distance_au``: without it the clear sky errs by the
+    ±3.4 % of the orbit's eccentricity, high in July and low in January.
+    """
     elevation = 90.0 - np.asarray(solar_zenith_deg, dtype=float)
+    dni_extra = SOLIS_EXTRATERRESTRIAL_W_M2 / np.asarray(earth_sun_distance_au, dtype=float) ** 2
     ghi = clearsky.simplified_solis(np.clip(elevation, 0.0, 90.0), aod700=aod_700,
                                     precipitable_water=precipitable_water_cm,
-                                    pressure=np.asarray(pressure_hpa, dtype=float) * 100.0)["ghi"]
+                                    pressure=np.asarray(pressure_hpa, dtype=float) * 100.0,
+                                    dni_extra=dni_extra)["ghi"]
     return np.where(elevation > 0.0, np.asarray(ghi, dtype=float), 0.0)
 
 
 def cmf_from_global_irradiance(measured_ghi_w_m2, solar_zenith_deg, pressure_hpa=1013.25,
-                               exponent: float = 1.0) -> np.ndarray:
+                               exponent: float = 1.0, earth_sun_distance_au=1.0) -> np.ndarray:
     """UV CMF from a measured broadband global horizontal irradiance (W m⁻²).
 
     CMF_UV = (GHI_measured / GHI_clear)^exponent, GHI_clear from
@@ -124,7 +137,8 @@ def cmf_from_global_irradiance(measured_ghi_w_m2, solar_zenith_deg, pressure_hpa
                   "must be a non-negative number of W m-2", ghi)
     if not 0.0 < exponent <= 2.0:
         raise ValueError(f"exponent must be in (0, 2], got {exponent!r}")
-    clear = clear_sky_global_horizontal_w_m2(zenith, pressure_hpa)
+    clear = clear_sky_global_horizontal_w_m2(zenith, pressure_hpa,
+                                             earth_sun_distance_au=earth_sun_distance_au)
     usable = (90.0 - zenith) >= MIN_SOLAR_ELEVATION_FOR_CLEAR_SKY_INDEX_DEG
     index = np.where(usable, ghi / np.where(usable, clear, 1.0), np.nan)
     cmf = index ** exponent
@@ -149,9 +163,10 @@ def cmf_from_measured_global_irradiance(measured_ghi_w_m2, time_unix_s, latitude
     ghi = np.asarray(measured_ghi_w_m2, dtype=float)
     elevation = np.where(np.isnan(elevation_m), 0.0, elevation_m)
     pressure = surface_pressure_hpa(elevation, pressure_hpa)
-    zenith = solar_position(time_unix_s, latitude_deg, longitude_deg, elevation, pressure).zenith_deg
+    sun = solar_position(time_unix_s, latitude_deg, longitude_deg, elevation, pressure)
+    zenith = sun.zenith_deg
     usable = ~np.isnan(ghi) & ((90.0 - zenith) >= MIN_SOLAR_ELEVATION_FOR_CLEAR_SKY_INDEX_DEG)
-    clear = clear_sky_global_horizontal_w_m2(zenith, pressure)
+    clear = clear_sky_global_horizontal_w_m2(zenith, pressure, earth_sun_distance_au=sun.earth_sun_distance_au)
     cmf = np.full(ghi.shape, np.nan)
     cmf[usable] = (ghi[usable] / clear[usable]) ** exponent
     check_records(cmf > CMF_RANGE[1], "measured_ghi_w_m2", IMPLAUSIBLE_MEASUREMENT, ghi)

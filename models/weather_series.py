@@ -230,11 +230,13 @@ def clear_sky_ghi_mean_w_m2(start_unix_s, end_unix_s, latitude_deg, longitude_de
     times = np.concatenate([middle - node * half, middle + node * half])
     sun = solar_position(times, np.tile(lat, 2), np.tile(lon, 2), np.tile(height, 2), np.tile(resolved, 2))
     zenith = sun.zenith_deg.reshape(2, -1)
-    mean = clouds.clear_sky_global_horizontal_w_m2(zenith, resolved[None, :]).mean(axis=0)
+    distance = sun.earth_sun_distance_au.reshape(2, -1)
+    mean = clouds.clear_sky_global_horizontal_w_m2(zenith, resolved[None, :],
+                                                   earth_sun_distance_au=distance).mean(axis=0)
     elevation_deg = 90.0 - zenith
     # The sun's elevation changes by at most 15° an hour (the hour angle's rate).
     highest = elevation_deg.max(axis=0) + MAX_ELEVATION_RATE_DEG_S * (1.0 - node) * half
-    return mean, elevation_deg.mean(axis=0), highest, sun.earth_sun_distance_au.reshape(2, -1)[0]
+    return mean, elevation_deg.mean(axis=0), highest, distance[0]
 
 
 def _irradiance_cmf(ghi, order, start, end, owner_sorted, place, errors):

@@ -37,6 +37,30 @@ def test_clear_sky_ghi_agrees_with_ineichen():
     np.testing.assert_allclose(clouds.clear_sky_global_horizontal_w_m2(zenith), ref, rtol=0.10)
 
 
+def test_clear_sky_ghi_follows_the_earth_sun_distance():
+    # Perihelion 0.98329 AU and aphelion 1.01671 AU (the orbit's eccentricity 0.0167,
+    # Astronomical Almanac, from memory): the clear sky is 6.9 % higher in early January.
+    zenith = np.array([30.0, 60.0])
+    ratio = (clouds.clear_sky_global_horizontal_w_m2(zenith, earth_sun_distance_au=0.98329)
+             / clouds.clear_sky_global_horizontal_w_m2(zenith, earth_sun_distance_au=1.01671))
+    np.testing.assert_allclose(ratio, (1.01671 / 0.98329) ** 2, rtol=1e-9)
+
+
+def test_measured_ghi_is_read_against_the_day_s_clear_sky():
+    # The same clear-sky reading at the same solar zenith is a CMF of 1 in January and in
+    # July: the seasonal 6.9 % of the distance is not taken for cloud.
+    from uvdose.models.solar_geometry import solar_position
+    times = np.array([np.datetime64("2026-01-03T12:00"), np.datetime64("2026-07-04T12:00")])
+    unix = (times - np.datetime64("1970-01-01T00:00")) / np.timedelta64(1, "s")
+    lat, lon = np.array([-30.0, 30.0]), np.array([0.0, 0.0])
+    sun = solar_position(unix, lat, lon, np.zeros(2), np.full(2, 1013.25))
+    clear = clouds.clear_sky_global_horizontal_w_m2(sun.zenith_deg, 1013.25,
+                                                    earth_sun_distance_au=sun.earth_sun_distance_au)
+    cmf = clouds.cmf_from_measured_global_irradiance(clear, unix, lat, lon, np.zeros(2), np.full(2, 1013.25))
+    np.testing.assert_allclose(cmf, [1.0, 1.0], rtol=1e-9)
+    assert clear[0] / clear[1] > 1.05
+
+
 def test_cmf_from_global_irradiance():
     zenith = np.array([30.0, 30.0, 30.0, 88.0, 30.0])
     clear = clouds.clear_sky_global_horizontal_w_m2(zenith)

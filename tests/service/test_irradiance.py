@@ -395,15 +395,17 @@ def test_an_operator_ozone_grid_in_the_app_config_is_used_and_named(tmp_path, ma
 
 def _clear_sky_ghi(record=ORCHARD):
     """Broadband clear-sky GHI at a record by pvlib's simplified Solis model (Ineichen 2008;
-    reference library), with the SPA zenith from pvlib and the standard-atmosphere pressure."""
+    reference library), with the SPA zenith from pvlib, the standard-atmosphere pressure and
+    the day's extraterrestrial irradiance (pvlib's Spencer 1971 distance, at Solis' 1364 W m-2)."""
     import pandas as pd
-    from pvlib import atmosphere, clearsky, solarposition
+    from pvlib import atmosphere, clearsky, irradiance, solarposition
 
     time = pd.DatetimeIndex([record["time"]])
     pressure_pa = atmosphere.alt2pres(record["elevation_m"])
     zenith = solarposition.get_solarposition(time, record["lat"], record["lon"], record["elevation_m"],
                                              pressure=pressure_pa)["apparent_zenith"].iloc[0]
-    return float(clearsky.simplified_solis(90.0 - zenith, pressure=pressure_pa)["ghi"])
+    dni_extra = float(irradiance.get_extra_radiation(time, solar_constant=1364.0).iloc[0])
+    return float(clearsky.simplified_solis(90.0 - zenith, pressure=pressure_pa, dni_extra=dni_extra)["ghi"])
 
 
 def test_a_measured_global_irradiance_sets_the_cloud_factor_to_the_clear_sky_index(exact):
