@@ -159,6 +159,17 @@ class ClimatologyTable:
                 data["ozone_sigma_fraction"] if "ozone_sigma_fraction" in data.files else None,
             )
 
+    @staticmethod
+    def write(path: Path, day_nodes, latitude_nodes_deg, longitude_nodes_deg, ozone_du,
+              provenance: dict[str, str], ozone_sigma_fraction=None) -> None:
+        """Write a table file in the layout :meth:`load` reads (compressed ``.npz``; the
+        provenance as ``meta_*`` entries). For the build scripts in ``models/data/``."""
+        sigma = {} if ozone_sigma_fraction is None else {"ozone_sigma_fraction": ozone_sigma_fraction}
+        np.savez_compressed(path, day_nodes=day_nodes, latitude_nodes_deg=latitude_nodes_deg,
+                            longitude_nodes_deg=longitude_nodes_deg, ozone_du=ozone_du, **sigma,
+                            **{f"meta_{key}": np.array(value) for key, value in provenance.items()})
+        print(f"wrote {path} {ozone_du.shape} {ozone_du.min():.1f}..{ozone_du.max():.1f} DU")
+
     @property
     def has_sigma(self) -> bool:
         return self._sigma_grid is not None

@@ -21,6 +21,7 @@ if str(REPO_ROOT) not in sys.path:
     sys.path.insert(0, str(REPO_ROOT))
 
 from uvdose.models.ozone_climatology import (  # noqa: E402
+    ClimatologyTable,
     DAYS_PER_CLIMATOLOGICAL_YEAR,
     TABLE_PATH,
     van_heuklon_ozone_du,
@@ -63,16 +64,7 @@ def build_table():
 
 
 def main(path: Path = TABLE_PATH) -> None:
-    day_nodes, latitude_nodes, longitude_nodes, ozone = build_table()
-    np.savez_compressed(
-        path,
-        day_nodes=day_nodes,
-        latitude_nodes_deg=latitude_nodes,
-        longitude_nodes_deg=longitude_nodes,
-        ozone_du=ozone,
-        **{f"meta_{key}": np.array(value) for key, value in PROVENANCE.items()},
-    )
-    print(f"wrote {path} {ozone.shape} {ozone.min():.1f}..{ozone.max():.1f} DU")
+    ClimatologyTable.write(path, *build_table(), PROVENANCE)
 
 
 if __name__ == "__main__":

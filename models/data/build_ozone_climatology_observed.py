@@ -86,6 +86,8 @@ REPO_ROOT = Path(__file__).resolve().parents[2]
 if str(REPO_ROOT) not in sys.path:
     sys.path.insert(0, str(REPO_ROOT))
 
+from uvdose.models.ozone_climatology import ClimatologyTable  # noqa: E402
+
 OUTPUT = Path(__file__).with_name("ozone_climatology_observed.npz")
 
 BAND_CENTRES_DEG = np.arange(-85.0, 86.0, 10.0)
@@ -260,16 +262,8 @@ def build_table():
 
 def main(path: Path = OUTPUT) -> None:
     day_nodes, latitude_nodes, longitude_nodes, ozone, sigma = build_table()
-    np.savez_compressed(
-        path,
-        day_nodes=day_nodes,
-        latitude_nodes_deg=latitude_nodes,
-        longitude_nodes_deg=longitude_nodes,
-        ozone_du=ozone,
-        ozone_sigma_fraction=sigma,
-        **{f"meta_{key}": np.array(value) for key, value in PROVENANCE.items()},
-    )
-    print(f"wrote {path} {ozone.shape} {ozone.min():.1f}..{ozone.max():.1f} DU")
+    ClimatologyTable.write(path, day_nodes, latitude_nodes, longitude_nodes, ozone, PROVENANCE,
+                           ozone_sigma_fraction=sigma)
 
 
 if __name__ == "__main__":
