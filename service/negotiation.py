@@ -22,6 +22,7 @@ from uvdose.service.problems import Problem
 
 JSON_MEDIA_TYPE = "application/json"
 CSV_MEDIA_TYPE = "text/csv"
+NDJSON_MEDIA_TYPE = "application/x-ndjson"
 YAML_MEDIA_TYPE = "application/yaml"
 HTML_MEDIA_TYPE = "text/html"
 PROMETHEUS_TEXT_MEDIA_TYPE = "text/plain"

@@ -319,14 +319,26 @@ def _row_builder(keys: tuple[str, ...], nest: str | None) -> Callable[[Iterable[
     return eval(f"lambda rows: [{{{display}}} for {targets} in rows]")  # noqa: S307
 
 
+def csv_cell(value: Any) -> Any:
+    """One value as a CSV cell, the one cell writer of every CSV answer (the streamed ones
+    of :mod:`service.answer_streams` too): ``None`` and NaN as empty cells, booleans as
+    ``true``/``false`` (as in JSON and in the query options), anything else as the csv
+    module writes it."""
+    if value is None or (isinstance(value, float) and value != value):
+        return None
+    if value is True or value is False:
+        return "true" if value else "false"
+    return value
+
+
 def csv_text(columns: Mapping[str, Sequence], header: bool = True) -> str:
     """Equal-length columns as CSV text (with a header line unless ``header`` is false);
-    ``None`` and NaN as empty cells."""
+    every cell through :func:`csv_cell`."""
     out = io.StringIO()
     writer = csv.writer(out, lineterminator="\n")
     if header:
-        writer.writerow(list(columns))
-    cleaned = [[None if isinstance(v, float) and v != v else v for v in values] for values in columns.values()]
+        writer.writerow([csv_cell(name) for name in columns])
+    cleaned = [[csv_cell(v) for v in values] for values in columns.values()]
     writer.writerows(zip(*cleaned))
     return out.getvalue()
 
