@@ -38,28 +38,49 @@ def _curl(command: str, stdin: str | None) -> Example:
     return Example("POST" if body is not None else "GET", url.removeprefix(SERVER), headers, body)
 
 
+def _sh_examples(block: str) -> list[Example]:
+    joined = block.replace("\\\n", " ")
+    heredoc = re.search(r"<<'CSV'\n(.*?)\nCSV", joined, flags=re.S)
+    return [_curl(line.split(" <<'CSV'")[0], heredoc.group(1) + "\n" if heredoc else None)
+            for line in joined.splitlines() if line.startswith("curl ")]
+
+
 def curl_examples(text: str | None = None) -> list[Example]:
     """Every curl command of the "API examples" section, as written."""
     text = README.read_text(encoding="utf-8") if text is None else text
     section = text.split("## API examples", 1)[1].split("\n## ", 1)[0]
-    examples = []
-    for block in re.findall(r"```sh\n(.*?)```", section, flags=re.S):
-        joined = block.replace("\\\n", " ")
-        heredoc = re.search(r"<<'CSV'\n(.*?)\nCSV", joined, flags=re.S)
-        for line in joined.splitlines():
-            if line.startswith("curl "):
-                examples.append(_curl(line.split(" <<'CSV'")[0], heredoc.group(1) + "\n" if heredoc else None))
-    return examples
+    return [example for block in re.findall(r"```sh\n(.*?)```", section, flags=re.S)
+            for example in _sh_examples(block)]
+
+
+def _posted(block: str) -> Example:
+    first, body = block.split("\n", 1)
+    return Example("POST", first.split()[1], {"Content-Type": "application/json"}, body.encode())
+
+
+def shown_answers(text: str | None = None) -> list[tuple[Example, str, str]]:
+    """Every request of the README followed at once by the answer it shows:
+    ``(example, "json" or "csv", the answer as shown)``."""
+    text = README.read_text(encoding="utf-8") if text is None else text
+    blocks = re.findall(r"```(\w*)\n(.*?)```", text, flags=re.S)
+    pairs = []
+    for (lang, body), (next_lang, shown) in zip(blocks, blocks[1:]):
+        if next_lang not in ("json", "") or shown.startswith("POST "):
+            continue
+        if lang == "sh" and body.count("curl ") == 1:
+            example, = _sh_examples(body)
+        elif lang == "json" and body.startswith("POST /v1/"):
+            example = _posted(body)
+        else:
+            continue
+        pairs.append((example, next_lang or "csv", shown))
+    return pairs
 
 
 def posted_json_examples(text: str | None = None) -> list[Example]:
     """Every ``json`` block of the README that starts with a ``POST /v1/...`` line."""
     text = README.read_text(encoding="utf-8") if text is None else text
-    examples = []
-    for block in re.findall(r"```json\n(POST (/v1/\S+)\n(.*?))```", text, flags=re.S):
-        _, path, body = block
-        examples.append(Example("POST", path, {"Content-Type": "application/json"}, body.encode()))
-    return examples
+    return [_posted(block) for block in re.findall(r"```json\n(POST /v1/.*?)```", text, flags=re.S)]
 
 
 def all_examples() -> list[Example]:
