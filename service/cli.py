@@ -65,7 +65,7 @@ def run_batch(
     try:
         if in_type == wire_formats.JSON_MEDIA_TYPE and options:
             # Command-line options override those in the file.
-            body = orjson.loads(data)
+            body = wire_formats.parse_json_body(data)
             if isinstance(body, dict):
                 if spectra:
                     body["spectra"] = list(spectra)
@@ -76,8 +76,7 @@ def run_batch(
         batch_request = wire_formats.read_batch_bytes(
             data, in_type, query, record_schema=irr.IrradianceRecordSchema(),
             options_schema=irr.IrradianceOptionsSchema(), max_records=sys.maxsize)
-    except (Problem, orjson.JSONDecodeError) as error:
-        problem = error if isinstance(error, Problem) else Problem(400, "malformed-body", "Unreadable input", str(error))
+    except Problem as problem:
         sys.stderr.write(response_for(problem).get_data(as_text=True) + "\n")
         return EXIT_INVALID
     del data

@@ -25,6 +25,7 @@ from marshmallow import Schema, ValidationError, fields, validate
 from uvdose.service.problems import FieldError, Problem, invalid_records
 from uvdose.service.record_fields import (
     IsoDate,
+    NoControlCharacters,
     OffsetDateTime,
     OneOfRegistry,
     StrictBoolean,
@@ -52,6 +53,7 @@ class ColumnRule:
     max_inclusive: bool = True
     max_length: int | None = None
     registry: OneOfRegistry | None = None
+    no_control_characters: bool = False
 
 
 _KINDS = ((WholeNumber, "whole"), (StrictNumber, "number"), (OffsetDateTime, "time"), (IsoDate, "date"),
@@ -81,6 +83,8 @@ def _column_rules_of(schema_class: type[Schema]) -> tuple[ColumnRule, ...]:
                 rule["max_length"] = validator.max
             elif isinstance(validator, OneOfRegistry):
                 rule["registry"] = validator
+            elif isinstance(validator, NoControlCharacters):
+                rule["no_control_characters"] = True
             else:
                 raise TypeError(f"{name}: no column check for validator {type(validator).__name__}")
         rules.append(ColumnRule(**rule))
@@ -220,7 +224,11 @@ def _check_text(rule: ColumnRule, values: list, n: int) -> tuple[np.ndarray, np.
             ok &= np.fromiter(map(len, texts), dtype=np.int64, count=len(texts)) <= rule.max_length
         if rule.registry is not None:
             ok &= np.isin(texts.astype(str), np.array(sorted(rule.registry.choices), dtype=str))
+        if rule.no_control_characters:
+            search = NoControlCharacters.pattern.search
+            ok &= np.fromiter((search(text) is None for text in texts), dtype=bool, count=len(texts))
         bad[np.flatnonzero(given)[~ok]] = True
+    column[bad] = None  # a refused text (an over-long or control-laden id) is not echoed back
     return column, bad
 
 

@@ -110,20 +110,25 @@ class Problem(Exception):
     detail: str | None = None
     errors: list[FieldError] = field(default_factory=list)
     extensions: dict[str, Any] = field(default_factory=dict)
+    error_count: int | None = None
+    """How many errors were found, when ``errors`` lists only some of them."""
 
     def __str__(self) -> str:
         return f"{self.status} {self.title}: {self.detail or ''}"
 
 
-def invalid_records(errors: Sequence[FieldError], n: int, what: str = "record") -> Problem:
+def invalid_records(errors: Sequence[FieldError], n: int, what: str = "record",
+                    error_count: int | None = None) -> Problem:
     """The 422 problem for ``errors`` found in ``n`` records (``what`` names them in the detail);
-    ``invalid-options`` when no error names a record."""
+    ``invalid-options`` when no error names a record. ``error_count``: how many errors were
+    found, when ``errors`` lists only some."""
     bad_count = len({error.index for error in errors if error.index is not None})
     if not bad_count:  # only request-wide errors: options, or column names in the column layout
         return Problem(422, "invalid-options", "The request options are invalid", "Nothing was computed.",
-                       list(errors))
+                       list(errors), error_count=error_count)
     return Problem(422, "invalid-records", "The batch has invalid records",
-                   f"{bad_count} of {n} {what}(s) have errors; nothing was computed.", list(errors))
+                   f"{bad_count} of {n} {what}(s) have errors; nothing was computed.", list(errors),
+                   error_count=error_count)
 
 
 NameRecordError = Callable[[RecordError], FieldError]
@@ -201,7 +206,7 @@ def response_for(problem: Problem, max_errors: int | None = None) -> Response:
     extensions = dict(problem.extensions)
     if problem.errors:
         listed = problem.errors if max_errors is None else problem.errors[:max_errors]
-        extensions["error_count"] = len(problem.errors)
+        extensions["error_count"] = max(len(problem.errors), problem.error_count or 0)
         extensions["errors"] = [error.as_dict() for error in listed]
     return problem_response(
         problem.status, problem.title, problem.detail, TYPE_PREFIX + problem.slug, **extensions

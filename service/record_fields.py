@@ -13,6 +13,7 @@ columns go to :func:`models.engine.Conditions.from_columns` unchanged.
 """
 from __future__ import annotations
 
+import re
 from datetime import datetime, timezone
 from typing import Any, Callable, Iterable, Mapping
 
@@ -147,6 +148,20 @@ class OneOfRegistry(validate.Validator):
         return value
 
 
+class NoControlCharacters(validate.Validator):
+    """Text without control characters (Unicode category Cc: U+0000-U+001F, U+007F-U+009F):
+    an id is echoed into JSON, CSV and logs, where NUL, CR or ESC would do harm."""
+
+    pattern = re.compile("[\x00-\x1f\x7f-\x9f]")
+
+    def __call__(self, value: str) -> str:
+        found = self.pattern.search(value)
+        if found:
+            raise ValidationError(f"must not hold control characters (U+{ord(found.group()):04X} at "
+                                  f"position {found.start()})")
+        return value
+
+
 # ---------------------------------------------------------------------------------------
 # Schema bases
 
@@ -226,7 +241,10 @@ def _surface_type_names() -> Iterable[str]:
     return SURFACE_TYPES.keys()
 
 
-RECORD_ID = Text(validate=validate.Length(max=200, error="must be at most {max} characters"),
+MAX_ID_CHARACTERS = 200
+"""Longest record (or route) id accepted, in characters."""
+RECORD_ID = Text(validate=[validate.Length(max=MAX_ID_CHARACTERS, error="must be at most {max} characters"),
+                           NoControlCharacters()],
                  metadata={"description": "client's own label, echoed back"})
 LATITUDE = StrictNumber(data_key="lat", required=True, validate=between(-90, 90),
                         metadata={"units": "degree north"})

@@ -87,6 +87,7 @@ from uvdose.service.wire_formats import (
     read_json_object,
     row_columns,
     rows_from_columns,
+    too_many,
 )
 
 blueprint = Blueprint("doses", __name__)
@@ -100,6 +101,9 @@ MAX_WINDOW_S = 31 * 86400.0
 MAX_SEASON_DAYS = 366
 MAX_ROUTE_POINTS = 500_000
 """Points accepted in one routes request, all routes together."""
+MAX_ROUTE_SPAN_S = MAX_WINDOW_S
+"""Longest time from a route's first point to its last (31 days, as for a window): bounds
+the samples of one route before any is allocated."""
 
 DEFAULT_WINDOW_SPECTRA = ("erythema", "actinic_icnirp")
 DEFAULT_FIELD_SPECTRA = ("plant_damage", "plant_growth", "erythema")
@@ -384,20 +388,24 @@ def _daily_inputs(daily: Any, n_fields: int, first: np.datetime64, n_days: int):
     if not n:
         return ozone, cmf, source
     columns = entries.columns
-    field_index = columns["field_index"].astype(np.int64)
+    # Compared as floats first: an index past the int64 range must be an error, not wrap.
+    beyond = columns["field_index"] >= n_fields
+    field_index = np.where(beyond, 0, columns["field_index"]).astype(np.int64)
     day_index = (columns["day_unix_s"] // _SECONDS_PER_DAY).astype(np.int64) - first.astype(np.int64)
-    errors += [FieldError(field=f"daily.field[{i}]", reason=f"must be a record index 0–{n_fields - 1}")
-               for i in np.flatnonzero(field_index >= n_fields)[:100]]
-    errors += [FieldError(field=f"daily.day[{i}]", reason="must lie between first_day and last_day")
-               for i in np.flatnonzero((day_index < 0) | (day_index >= n_days))[:100]]
+    outside = (day_index < 0) | (day_index >= n_days)
     key = field_index * n_days + day_index
     order = np.argsort(key, kind="stable")
     repeated = np.zeros(n, bool)
     repeated[order[1:]] = key[order][1:] == key[order][:-1]
-    errors += [FieldError(field=f"daily.day[{i}]", reason="repeats a field and day given before")
-               for i in np.flatnonzero(repeated)[:100]]
+    repeated &= ~beyond & ~outside
+    found = [(beyond, "field", f"must be a record index 0–{n_fields - 1}"),
+             (outside, "day", "must lie between first_day and last_day"),
+             (repeated, "day", "repeats a field and day given before")]
+    listed = current_app.config["UVDOSE_MAX_ERRORS_LISTED"]
+    errors = [FieldError(field=f"daily.{column}[{i}]", reason=reason)
+              for mask, column, reason in found for i in np.flatnonzero(mask)[:listed]]
     if errors:
-        raise invalid_records(errors, 0)
+        raise invalid_records(errors, 0, error_count=sum(int(np.count_nonzero(mask)) for mask, _, _ in found))
 
     def column(name):
         return columns.get(name, np.full(n, np.nan))
@@ -619,6 +627,23 @@ def _route_count(raw_routes: list) -> int:
     return sum(map(size, raw_routes))
 
 
+def _overlong_routes(flat: _RouteBatch, time_unix_s: np.ndarray, ids: np.ndarray) -> list[FieldError]:
+    """An error for each route whose points span more than :data:`MAX_ROUTE_SPAN_S`,
+    naming its last point's time (times not readable are left to their own errors)."""
+    route = np.asarray(flat.point_route, dtype=np.int64)
+    first = np.full(len(flat.point_start), np.inf)
+    last = np.full(len(flat.point_start), -np.inf)
+    readable = ~np.isnan(time_unix_s)
+    np.minimum.at(first, route[readable], time_unix_s[readable])
+    np.maximum.at(last, route[readable], time_unix_s[readable])
+    ends = np.r_[flat.point_start[1:], len(route)] - 1
+    return [FieldError(field=flat.point_path(int(ends[r]), "time"),
+                       reason=f"the route may span at most {MAX_ROUTE_SPAN_S / 86400:g} days from its first "
+                              f"point to its last; it spans {(last[r] - first[r]) / 86400:.1f} days",
+                       index=int(r), id=_record_id(ids, r))
+            for r in np.flatnonzero(last - first > MAX_ROUTE_SPAN_S)]
+
+
 def _read_routes(raw_routes: list) -> tuple[vehicle_routes.RoutePoints, dict[str, np.ndarray], np.ndarray,
                                              NameRecordError]:
     """(points of every route, per-route conditions (R,), route ids, the namer of models
@@ -643,6 +668,7 @@ def _read_routes(raw_routes: list) -> tuple[vehicle_routes.RoutePoints, dict[str
             errors.append(FieldError(field=flat.point_path(error.index, wire), reason=error.reason,
                                      index=route, id=_record_id(ids, route)))
         columns = point_batch.columns
+        errors += _overlong_routes(flat, columns["time_unix_s"], ids)
     else:
         columns = {name: np.zeros(0) for name in ("time_unix_s", "latitude_deg", "longitude_deg")}
         columns.update(stop=np.zeros(0, bool), gap=np.zeros(0, bool))
@@ -678,8 +704,10 @@ def route_doses() -> Response:
         raise invalid_records(option_errors, 0)
     raw_routes = options["routes"]
     max_routes = current_app.config["UVDOSE_MAX_RECORDS"]
-    if not isinstance(raw_routes, list) or not raw_routes or len(raw_routes) > max_routes:
+    if not isinstance(raw_routes, list) or not raw_routes:
         raise _options_problem("routes", f"must be a non-empty array of at most {max_routes} routes")
+    if len(raw_routes) > max_routes:
+        raise too_many(len(raw_routes), max_routes, "routes")
     if _route_count(raw_routes) > MAX_ROUTE_POINTS:
         raise Problem(413, "too-many-records", "Too many records in one request",
                       f"At most {MAX_ROUTE_POINTS} route points are accepted per request.",

@@ -21,6 +21,7 @@ from flask import Request, Response
 from marshmallow import Schema, ValidationError, fields
 
 from uvdose.service.column_checks import Batch, column_rules, validate_columns
+from uvdose.service.json_body import parse_json_body
 from uvdose.service.negotiation import CSV_MEDIA_TYPE, JSON_MEDIA_TYPE, chosen_media_type
 from uvdose.service.problems import FieldError, Problem
 
@@ -58,10 +59,7 @@ def read_json_object(data: bytes, mimetype: str, members: str) -> dict[str, Any]
     if mimetype != JSON_MEDIA_TYPE and not mimetype.endswith("+json"):
         raise Problem(415, "unsupported-media-type", "Unsupported Media Type",
                       f"Send {JSON_MEDIA_TYPE}, not {mimetype or 'no Content-Type'}.")
-    try:
-        body = orjson.loads(data)
-    except orjson.JSONDecodeError as error:
-        raise malformed_body(f"The body is not valid JSON: {error}") from None
+    body = parse_json_body(data)
     if not isinstance(body, dict):
         raise malformed_body(f"The body must be a JSON object with {members}.")
     return body
@@ -319,15 +317,27 @@ def _row_builder(keys: tuple[str, ...], nest: str | None) -> Callable[[Iterable[
     return eval(f"lambda rows: [{{{display}}} for {targets} in rows]")  # noqa: S307
 
 
+FORMULA_LEADS = ("=", "+", "-", "@", "\t", "\r")
+"""First characters that make a spreadsheet read a text cell as a formula (the OWASP
+guidance on CSV injection); such cells are written with a leading single quote."""
+
+
+def spreadsheet_safe(text: str) -> str:
+    """``text`` as a CSV cell a spreadsheet shows as text: a single quote before a formula lead."""
+    return "'" + text if text.startswith(FORMULA_LEADS) else text
+
+
 def csv_cell(value: Any) -> Any:
     """One value as a CSV cell, the one cell writer of every CSV answer (the streamed ones
     of :mod:`service.answer_streams` too): ``None`` and NaN as empty cells, booleans as
-    ``true``/``false`` (as in JSON and in the query options), anything else as the csv
-    module writes it."""
+    ``true``/``false`` (as in JSON and in the query options), text made
+    :func:`spreadsheet_safe`, anything else as the csv module writes it."""
     if value is None or (isinstance(value, float) and value != value):
         return None
     if value is True or value is False:
         return "true" if value else "false"
+    if isinstance(value, str):
+        return spreadsheet_safe(value)
     return value
 
 
