@@ -6,8 +6,8 @@ from typing import Any
 
 from flask import Flask
 
-from uvdose.service import (auth, cautions, engine_gateway, metrics, negotiation, problems, request_log,
-                            response_compression)
+from uvdose.service import (auth, cautions, cors, engine_gateway, metrics, negotiation, problems, request_log,
+                            request_deadline, response_compression, security_headers)
 from uvdose.service.config import settings_from_environment
 
 
@@ -26,7 +26,10 @@ def create_app(config: dict[str, Any] | None = None) -> Flask:
     response_compression.init_app(app)
     problems.init_app(app)
     cautions.init_app(app)  # the caution header on every answer
+    security_headers.init_app(app)  # nosniff, framing, referrer and content policies on every answer
     request_log.init_app(app)
+    request_deadline.init_app(app)  # each request's clock starts here
+    cors.init_app(app)  # preflights answered before the key check; none unless origins are configured
     auth.init_app(app)
     metrics.init_app(app)
     negotiation.init_app(app)  # Accept against what each view produces, before any body is read

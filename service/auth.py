@@ -154,7 +154,9 @@ def init_app(app: Flask) -> None:
         if not ring.enabled:
             g.uvdose_auth = "off"
             return None
-        if request.path in OPEN_PATHS:
+        if request.path in OPEN_PATHS or request.method == "OPTIONS":
+            # OPTIONS (CORS preflights among them, which browsers send without the key)
+            # reads nothing and computes nothing; see service/cors.py.
             g.uvdose_auth = "open"
             return None
         key = presented_key()

@@ -117,6 +117,12 @@ SETTINGS: tuple[Setting, ...] = (
           "in one request; more get a 413 problem."),
     Setting("UVDOSE_MAX_BODY_BYTES", "MAX_CONTENT_LENGTH", 16 * 1024 * 1024, _whole_number(1),
             "Largest request body in bytes; larger bodies get a 413 problem."),
+    _same("UVDOSE_REQUEST_DEADLINE_S", 60.0, _positive_number,
+          "Seconds one request may compute; past it (checked between parts of the batch) the "
+          "answer is a 503 problem with Retry-After, logged."),
+    _same("UVDOSE_CORS_ORIGINS", None, _text,
+          "Origins (scheme://host[:port], comma-separated, or *) whose pages may call the API "
+          "from a browser; unset means no CORS headers (only the service's own origin)."),
     _same("UVDOSE_MAX_ERRORS_LISTED", 10_000, _whole_number(1),
           "Most record errors listed in one 422 problem (the count of all errors is always given)."),
     _same("UVDOSE_OPENAPI_PATH", None, _text,
@@ -171,7 +177,14 @@ SERVER_SETTINGS: tuple[Setting, ...] = (
     _same("UVDOSE_WORKERS", 2, _whole_number(1), "Worker processes, about one per CPU the container may use."),
     _same("UVDOSE_THREADS", 4, _whole_number(1), "Threads per worker."),
     _same("UVDOSE_WORKER_TIMEOUT", 120, _whole_number(1),
-          "Seconds one request may take before its worker is restarted."),
+          "Seconds a worker's main loop may go silent before the master restarts it (a hung "
+          "process, not a long request: UVDOSE_REQUEST_DEADLINE_S bounds those)."),
+    _same("UVDOSE_HEADER_TIMEOUT_S", 10.0, _positive_number,
+          "Seconds a client has, from its request's first byte, to send the request line and "
+          "headers; then a 408 problem and the connection is closed (logged)."),
+    _same("UVDOSE_BODY_TIMEOUT_S", 60.0, _positive_number,
+          "Seconds a client has, after the headers, to send the whole body; then a 408 problem "
+          "and the connection is closed (logged)."),
     _same("UVDOSE_GRACEFUL_TIMEOUT", 30, _whole_number(1),
           "Seconds in-flight requests get to finish after SIGTERM."),
     _same("UVDOSE_KEEPALIVE", 5, _whole_number(0), "Seconds an idle keep-alive connection stays open."),

@@ -27,7 +27,7 @@ from flask import Flask, current_app
 
 from uvdose.models import clear_sky, dose
 from uvdose.models.ozone_grids import OzoneResolver
-from uvdose.service import cache, uncertainty_fields
+from uvdose.service import cache, request_deadline, uncertainty_fields
 from uvdose.service.config import settings_from_environment
 
 OZONE_EXTENSION = "uvdose_ozone"
@@ -72,6 +72,11 @@ class Gateway:
     ozone_resolver: OzoneResolver | None = None
     cache: Any = None
     max_full_solve_records: int | None = None
+    check_deadline: Callable[[], None] | None = None  # raises once the request is past its deadline
+
+    def _on_time(self) -> None:
+        if self.check_deadline is not None:
+            self.check_deadline()
 
     def _budget(self) -> clear_sky.FullSolveBudget | None:
         limit = self.max_full_solve_records
@@ -89,6 +94,7 @@ class Gateway:
         writes = self.cache.allowance()
 
         def memo(description: str, state: Columns, transfer: Callable) -> dict[str, np.ndarray]:
+            self._on_time()
             return self.cache.compute_through(state, transfer, description, writes)
 
         return memo
@@ -103,6 +109,7 @@ class Gateway:
         (``EngineResult.as_columns`` names), the transfer through the cache."""
         from uvdose.models import engine
 
+        self._on_time()
         conditions = engine.Conditions.from_columns(columns)
         result = engine.compute(conditions, spectra=spectra, include_spectrum=include_spectrum,
                                 ozone_resolver=self.ozone_resolver, full_solve_budget=self._budget(),
@@ -121,6 +128,7 @@ class Gateway:
         def evaluate(columns: Columns) -> dict[str, np.ndarray]:
             # Samples are built from validated input, so a ValueError inside the engine is
             # our fault, not the client's: keep it out of the 422 path of the endpoints.
+            self._on_time()  # between chunks of samples
             try:
                 return self._with_cache_share(compute(columns), ("uv_index", *spectra))
             except ValueError as error:
@@ -171,7 +179,8 @@ def current(ozone_climatology: str | None = None) -> Gateway:
     ``ozone_climatology`` option if it gives one."""
     app = current_app
     return Gateway(app.extensions.get(OZONE_EXTENSION), app.extensions.get(CACHE_EXTENSION),
-                   app.config["UVDOSE_MAX_FULL_SOLVE_RECORDS"]).with_ozone_climatology(ozone_climatology)
+                   app.config["UVDOSE_MAX_FULL_SOLVE_RECORDS"],
+                   request_deadline.check).with_ozone_climatology(ozone_climatology)
 
 
 def default_spectra() -> list[str]:

@@ -80,6 +80,29 @@ PROBLEM_TYPES: tuple[ProblemType, ...] = (
                 "type, pressure below 500 hPa, AOD above 2, ozone below 100 DU) than one request may "
                 "send to the full radiative-transfer solve; `max_full_solve_records` says how many.",
                 "Split the batch, or leave the aerosol type at its default."),
+    ProblemType("body-too-large", 413, "The request body is too large",
+                "The body has more bytes than `UVDOSE_MAX_BODY_BYTES`, as sent or once decoded from "
+                "its `Content-Encoding`, whatever its framing (`Content-Length` or chunked); "
+                "`body_bytes` says how many were counted (`body_bytes_exact` false: at least that "
+                "many), `max_body_bytes` the limit. Nothing was computed.",
+                "Split the batch into several requests."),
+    ProblemType("incomplete-body", 400, "The request body is incomplete",
+                "The body ended before its `Content-Length`, its chunked framing broke off, its "
+                "gzip or zstd stream was cut, or it stopped arriving. Nothing was computed.",
+                "Send the whole body again."),
+    ProblemType("unsupported-content-encoding", 415, "Unsupported Content-Encoding",
+                "The body's `Content-Encoding` is not one the service decodes (`Accept-Encoding` "
+                "in the answer lists gzip and zstd).",
+                "Send the body uncoded, or gzip- or zstd-coded."),
+    ProblemType("request-timeout", 408, "Request Timeout",
+                "The request's headers or body did not arrive within `UVDOSE_HEADER_TIMEOUT_S` / "
+                "`UVDOSE_BODY_TIMEOUT_S`; the server closed the connection (logged).",
+                "Send the request at once, or split a large body over several requests."),
+    ProblemType("deadline-exceeded", 503, "The request took too long",
+                "Computing the answer would have outlasted `UVDOSE_REQUEST_DEADLINE_S` "
+                "(`deadline_s`); the work stopped between two parts of the batch and nothing is "
+                "answered but this problem (logged). `Retry-After` says when to try again.",
+                "Retry later, or split the batch (smaller requests finish within the deadline)."),
     ProblemType("unsupported-media-type", 415, "Unsupported Media Type",
                 "The body is neither `application/json` nor `text/csv` (where the endpoint takes CSV).",
                 "Send the body with one of the media types the operation lists."),
@@ -112,6 +135,7 @@ class Problem(Exception):
     extensions: dict[str, Any] = field(default_factory=dict)
     error_count: int | None = None
     """How many errors were found, when ``errors`` lists only some of them."""
+    headers: dict[str, str] = field(default_factory=dict)  # sent with the answer (say Retry-After)
 
     def __str__(self) -> str:
         return f"{self.status} {self.title}: {self.detail or ''}"
@@ -209,7 +233,8 @@ def response_for(problem: Problem, max_errors: int | None = None) -> Response:
         extensions["error_count"] = max(len(problem.errors), problem.error_count or 0)
         extensions["errors"] = [error.as_dict() for error in listed]
     return problem_response(
-        problem.status, problem.title, problem.detail, TYPE_PREFIX + problem.slug, **extensions
+        problem.status, problem.title, problem.detail, TYPE_PREFIX + problem.slug,
+        headers=problem.headers, **extensions
     )
 
 

@@ -43,6 +43,7 @@ from uvdose.service.column_checks import check_columns
 from uvdose.service.negotiation import JSON_MEDIA_TYPE, produces
 from uvdose.service.problems import (FieldError, NameRecordError, Problem, by_schema, invalid_records,
                                      records_named)
+from uvdose.service.request_body import read_body
 from uvdose.service.record_fields import (
     AOD_550,
     CLOUD_COVER,
@@ -698,7 +699,7 @@ def _read_routes(raw_routes: list) -> tuple[vehicle_routes.RoutePoints, dict[str
 @produces(JSON_MEDIA_TYPE)
 def route_doses() -> Response:
     negotiate(request)
-    body = read_json_object(request.get_data(), request.mimetype, "a `routes` array")
+    body = read_json_object(read_body(request), request.mimetype, "a `routes` array")
     options, option_errors = load_options(_ROUTE_OPTIONS, body)
     if option_errors:
         raise invalid_records(option_errors, 0)

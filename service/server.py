@@ -8,11 +8,13 @@ Worker and thread model
 -----------------------
 Each request is one numpy-vectorised engine call over its whole batch: CPU-bound work
 that holds the GIL for most of its time, with short waits on Redis and on the client's
-socket. So the unit of parallelism is the **process**: ``UVDOSE_WORKERS`` sync
+socket. So the unit of parallelism is the **process**: ``UVDOSE_WORKERS`` worker
 processes, about one per CPU core the service may use (container CPU limit, not the
-host's core count, which ``os.cpu_count()`` would report). Each worker runs the
-``gthread`` worker with ``UVDOSE_THREADS`` threads, so slow clients, Redis round trips
-and small requests do not queue behind one large batch; more threads than 2–4 per
+host's core count, which ``os.cpu_count()`` would report). Each worker runs
+:class:`uvdose.service.buffering_worker.BufferingWorker` (gunicorn's ``gthread`` with each
+request received whole, under ``UVDOSE_HEADER_TIMEOUT_S`` and ``UVDOSE_BODY_TIMEOUT_S``, before
+a thread takes it, so slow clients hold no thread) with ``UVDOSE_THREADS`` threads, so Redis
+round trips and small requests do not queue behind one large batch; more threads than 2–4 per
 worker buy nothing for CPU-bound batches, and numpy's BLAS runs one thread per process
 (:func:`pin_numeric_threads`; ``OPENBLAS_NUM_THREADS`` and its kin, when set, win). The
 app is preloaded in the master
@@ -25,7 +27,8 @@ Settings
 From the environment, parsed by ``service/config.py`` (``SERVER_SETTINGS``: the variables,
 their defaults and meanings; README "Configuration"): ``UVDOSE_BIND`` (the container
 image sets ``0.0.0.0:8080``), ``UVDOSE_WORKERS``, ``UVDOSE_THREADS``,
-``UVDOSE_WORKER_TIMEOUT``, ``UVDOSE_GRACEFUL_TIMEOUT``, ``UVDOSE_KEEPALIVE``,
+``UVDOSE_WORKER_TIMEOUT``, ``UVDOSE_HEADER_TIMEOUT_S``, ``UVDOSE_BODY_TIMEOUT_S``,
+``UVDOSE_GRACEFUL_TIMEOUT``, ``UVDOSE_KEEPALIVE``,
 ``UVDOSE_MAX_REQUESTS``, ``UVDOSE_PRELOAD`` and ``UVDOSE_LOG_LEVEL``. They stay out of the
 app's settings because gunicorn takes them before any app exists. A value that cannot be
 used stops gunicorn at start with a message naming the variable.
@@ -39,9 +42,11 @@ Logs: gunicorn's access log is off, since the app writes one JSON line per reque
 (service/request_log.py); gunicorn's own messages and everything on the root logger go to
 stderr as JSON lines with the same formatter.
 
-Shutdown: on SIGTERM the master stops accepting, tells workers to finish what they hold,
-waits up to ``graceful_timeout`` and exits 0. Orchestrators should allow
-``graceful_timeout`` plus any pre-stop delay before they send SIGKILL.
+Shutdown: on SIGTERM the master and the workers close their listening sockets (new
+connections are refused), workers finish what they hold, running requests are told to
+stop shortly before ``graceful_timeout`` (they answer 503) and what is still cut then is
+logged; the master exits 0. Orchestrators should allow ``graceful_timeout`` plus any
+pre-stop delay before they send SIGKILL.
 """
 from __future__ import annotations
 
@@ -112,7 +117,7 @@ def gunicorn_settings() -> dict[str, Any]:
     return {
         "bind": [settings["UVDOSE_BIND"]],
         "workers": settings["UVDOSE_WORKERS"],
-        "worker_class": "gthread",
+        "worker_class": "uvdose.service.buffering_worker.BufferingWorker",
         "threads": settings["UVDOSE_THREADS"],
         "timeout": settings["UVDOSE_WORKER_TIMEOUT"],
         "graceful_timeout": settings["UVDOSE_GRACEFUL_TIMEOUT"],

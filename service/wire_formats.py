@@ -24,6 +24,7 @@ from uvdose.service.column_checks import Batch, column_rules, validate_columns
 from uvdose.service.json_body import parse_json_body
 from uvdose.service.negotiation import CSV_MEDIA_TYPE, JSON_MEDIA_TYPE, chosen_media_type
 from uvdose.service.problems import FieldError, Problem
+from uvdose.service.request_body import read_body
 
 
 # ---------------------------------------------------------------------------------------
@@ -97,7 +98,7 @@ def read_batch(
 
     CSV bodies carry their options in the query string (same names; lists comma-separated).
     """
-    return read_batch_bytes(request.get_data(), request.mimetype, request.args,
+    return read_batch_bytes(read_body(request), request.mimetype, request.args,
                             record_schema=record_schema, options_schema=options_schema,
                             max_records=max_records)
 

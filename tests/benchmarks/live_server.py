@@ -31,6 +31,12 @@ def start_server(port: int, workers: int = 1, **settings: str) -> subprocess.Pop
         [sys.executable, "-m", "gunicorn", "--workers", str(workers), "--bind", f"127.0.0.1:{port}", "--timeout",
          "300", "uvdose.service.app:create_app()"], cwd=REPO, env=env, stdout=subprocess.DEVNULL,
         stderr=subprocess.DEVNULL)
+    return answering(process, port)
+
+
+def answering(process: subprocess.Popen, port: int) -> subprocess.Popen:
+    """``process`` once its ``/livez`` on ``port`` answers (stopped, and the script with it,
+    if that takes over a minute)."""
     deadline = time.monotonic() + 60
     while time.monotonic() < deadline:
         try:

@@ -10,6 +10,7 @@ import subprocess
 import sys
 import threading
 import time
+import urllib.error
 import urllib.request
 from pathlib import Path
 
@@ -186,3 +187,72 @@ def test_a_broken_key_file_stops_the_server_at_start(tmp_path):
     )
     assert result.returncode != 0
     assert b"UVDOSE_API_KEYS_FILE" in result.stderr
+
+
+def _post_outcome(url: str, outcome: dict, key: str, request_id: str) -> None:
+    request = urllib.request.Request(url, data=b"{}", method="POST", headers={"X-Request-ID": request_id})
+    try:
+        with urllib.request.urlopen(request, timeout=60) as reply:
+            outcome[key] = (reply.status, dict(reply.headers), reply.read())
+    except urllib.error.HTTPError as error:
+        outcome[key] = (error.code, dict(error.headers), error.read())
+    except Exception as error:  # a cut connection: reported by the assertions
+        outcome[key] = (None, {}, repr(error).encode())
+
+
+def _wait_for(marker: Path, what: str) -> None:
+    deadline = time.monotonic() + 10
+    while not marker.exists():
+        assert time.monotonic() < deadline, f"{what} never reached the app"
+        time.sleep(0.02)
+    marker.unlink()
+
+
+def test_sigterm_answers_a_long_request_refuses_new_connections_and_logs_what_it_cut(tmp_path):
+    marker = tmp_path / "hold-started"
+    graceful_s = 6  # running requests are told to stop at 4 s (service/buffering_worker.py)
+    process, base_url, _, logs = _start(tmp_path, "tests.deploy.slow_app:create_app()",
+                                        {"UVDOSE_TEST_HOLD_MARKER": str(marker),
+                                         "UVDOSE_GRACEFUL_TIMEOUT": str(graceful_s)})
+    port = int(base_url.rsplit(":", 1)[1])
+    outcome: dict = {}
+    # One request works in parts and checks its deadline (as the engine gateway does);
+    # the other sleeps through and can only be cut.
+    clients = [threading.Thread(target=_post_outcome, args=(base_url + "/v1/test-parts?seconds=100", outcome,
+                                                            "parts", "drain-parts")),
+               threading.Thread(target=_post_outcome, args=(base_url + "/v1/test-hold?seconds=100", outcome,
+                                                            "hold", "drain-hold"))]
+    refused_after_s = None
+    try:
+        for client in clients:
+            client.start()
+            _wait_for(marker, "a long request")
+        process.send_signal(signal.SIGTERM)
+        signalled = time.monotonic()
+        while refused_after_s is None and time.monotonic() - signalled < graceful_s:
+            try:
+                socket.create_connection(("127.0.0.1", port), timeout=1).close()
+                time.sleep(0.05)
+            except ConnectionRefusedError:
+                refused_after_s = time.monotonic() - signalled
+        for client in clients:
+            client.join(timeout=60)
+        exit_code = process.wait(timeout=60)
+    finally:
+        _clean_up(process, logs)
+
+    assert refused_after_s is not None, "new connections were not refused during the drain"
+    status, headers, body = outcome["parts"]
+    assert status == 503, body[:300]
+    assert int(headers["Retry-After"]) >= 1
+    problem = json.loads(body)
+    assert problem["type"] == "urn:uvdose:problem:deadline-exceeded" and "stopping" in problem["detail"]
+    assert outcome["hold"][0] is None  # slept through the graceful timeout: cut, and logged below
+    assert exit_code == 0
+    messages = [line.get("message", "") for line in _json_lines(tmp_path / "stderr.log")]
+    assert any(m.startswith("stopping: 2 requests in progress") for m in messages)
+    assert any(m.startswith("request stopped: the server is stopping") for m in messages)
+    assert any(f"stopped after the {graceful_s} s graceful timeout: cut 1 requests in progress" in m
+               for m in messages)
+    (parts,) = [line for line in _json_lines(tmp_path / "stdout.log") if line["request_id"] == "drain-parts"]
+    assert parts["status"] == 503

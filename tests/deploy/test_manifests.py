@@ -187,7 +187,7 @@ def test_gunicorn_config_names_only_known_settings(gunicorn_settings):
 def test_gunicorn_defaults_and_environment(gunicorn_settings, monkeypatch):
     monkeypatch.delenv("UVDOSE_PRELOAD", raising=False)
     settings = gunicorn_settings()
-    assert settings["worker_class"] == "gthread"
+    assert settings["worker_class"] == "uvdose.service.buffering_worker.BufferingWorker"  # slow clients: see there
     assert (settings["workers"], settings["threads"], settings["graceful_timeout"]) == (2, 4, 30)
     assert settings["accesslog"] is None and settings["preload_app"] is True
     changed = gunicorn_settings({"UVDOSE_BIND": "127.0.0.1:9123", "UVDOSE_WORKERS": "3",

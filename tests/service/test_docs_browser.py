@@ -1,5 +1,6 @@
-"""/docs in a real headless Chromium against the real app under gunicorn, behind the
-strictest Content-Security-Policy the page should need (tests/service/strict_csp_app.py).
+"""/docs in a real headless Chromium against the real app under gunicorn, under the
+Content-Security-Policy the service sends with the page (service/security_headers.py: nothing
+allowed but the service itself; the server fixture checks the header is there).
 
 What a reader of the page must get: every operation and every schema field of the
 contract (compared with openapi.yaml itself), the example forms sending a request (the
@@ -11,12 +12,14 @@ controls, keyboard use and readable contrast. Screenshots are kept as test artef
 from __future__ import annotations
 
 import re
+import urllib.request
 
 import pytest
 
 from tests.service.browser import Artefacts, start_chromium, stop_chromium
 from tests.service.conftest import running_gunicorn
 from tests.service.contract_examples import operations
+from tests.service.test_edge_policies import STRICT_DOCS_POLICY
 
 pytestmark = pytest.mark.browser
 
@@ -25,8 +28,9 @@ SCHEMA_KEYS = ("allOf", "oneOf", "anyOf")
 
 @pytest.fixture(scope="module")
 def server(tmp_path_factory):
-    with running_gunicorn(tmp_path_factory, app="tests.service.strict_csp_app:create_app()",
-                          UVDOSE_CACHE="memory") as base_url:
+    with running_gunicorn(tmp_path_factory, UVDOSE_CACHE="memory") as base_url:
+        with urllib.request.urlopen(base_url + "/docs", timeout=10) as reply:
+            assert reply.headers["Content-Security-Policy"] == STRICT_DOCS_POLICY
         yield base_url
 
 
