@@ -212,8 +212,8 @@ def csv_columns(data: bytes, schema: Schema) -> tuple[dict[str, list], int]:
     except csv.Error as error:
         raise malformed_body(f"The CSV body cannot be parsed: {error}") from None
     rows = [row for row in rows if row]
-    if len(rows) < 2:
-        raise malformed_body("The CSV body needs a header line and at least one record line.")
+    if len(rows) < 2:  # readable, but no record: as an empty `records` array, a 422
+        raise _layout_problem("records", "a CSV body needs a header line and at least one record line")
     header, body = [name.strip() for name in rows[0]], rows[1:]
     errors = [FieldError(field="", reason=f"has {len(row)} values, the header has {len(header)}", index=index)
               for index, row in enumerate(body) if len(row) != len(header)]

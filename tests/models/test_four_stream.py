@@ -132,6 +132,9 @@ def test_mixture_moments():
         mixture_phase_moments(np.array([0.3]), np.array([1.0]))  # molecules have g = 0
     with pytest.raises(ValueError, match="rayleigh_scattering_fraction"):
         mixture_phase_moments(np.array([0.3]), np.array([1.2]))
+    # A layer whose aerosol share rounds to 0 keeps the rounding of its g (AOD 1.2e-7 at
+    # 300 hPa gave 1.6e-19, once a 500): pure Rayleigh moments.
+    np.testing.assert_allclose(mixture_phase_moments(np.array([1.6e-19]), np.array([1.0]))[0], [0.0, 0.1, 0.0, 0.0])
 
 
 def random_layers(rng, n=4, layers=12, wavelengths=7, ssa=None):

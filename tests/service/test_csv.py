@@ -83,7 +83,8 @@ def test_csv_errors_name_the_record_line_and_field(client):
     ("id,time,lat\na,2026-07-14T09:10:00Z,45\n", 422, "lon"),
     ("id,time,lat,lon\na,2026-07-14T09:10:00Z,45\n", 422, ""),
     ("id,time,lat,lon\na,2026-07-14T09:10:00Z,nan,4\n", 422, "lat"),
-    ("id,time,lat,lon\n", 400, None),
+    ("id,time,lat,lon\n", 422, "records"),  # no record: as an empty `records` array
+    ("", 422, "records"),
     ("time,time,lat,lon\na,b,1,2\n", 400, None),
 ])
 def test_malformed_csv_is_a_problem(client, text, status, field):

@@ -118,3 +118,43 @@ def test_generated_requests_to_the_live_server_never_get_a_5xx(case):
     # itself (414 for a request line over its 4094 bytes, in HTML), which the app's
     # contract does not describe. Full conformance is checked in-process above.
     case.call_and_validate(checks=[not_a_server_error])
+
+
+# --- every check schemathesis has, 200 examples per operation -------------------------------
+
+# Statuses the contract documents for requests the schema cannot tell from good ones: a
+# 422 for the rules JSON Schema cannot state (times in order, a window's end after its
+# start, a route's span, a daily entry's field index below the number of fields, one of
+# two exclusive fields, a query option beside a JSON body, a CSV line that is not a
+# record), a 413 for counts bounded by the deployment's settings (records, samples) rather
+# than by the document. A 400 for a schema-valid request is still a failure.
+_DOCUMENTED_REFUSALS = {
+    "checks": {
+        "positive_data_acceptance": {"expected-statuses": ["2xx", "401", "403", "404", "409", "413", "422", "429"]},
+        "negative_data_rejection": {"expected-statuses": ["400", "401", "403", "404", "405", "406", "409", "413",
+                                                          "415", "422", "428", "429"]},
+    },
+}
+
+
+@pytest.fixture
+def all_checks_schema():
+    from uvdose.service.app import create_app
+
+    app = create_app({"TESTING": True, "UVDOSE_MAX_RECORDS": 3, "UVDOSE_CACHE": "off"})
+    config = SchemathesisConfig.from_dict({
+        "phases": {"coverage": {"enabled": False}}, "seed": 20261202,
+        "headers": {"Accept-Encoding": "identity"}, **_DOCUMENTED_REFUSALS})
+    return schemathesis.openapi.from_wsgi("/openapi.yaml", app, config=config)
+
+
+all_checks = schemathesis.pytest.from_fixture("all_checks_schema")
+
+
+@pytest.mark.slow
+@all_checks.parametrize()
+@settings(max_examples=200, deadline=None, suppress_health_check=list(HealthCheck))
+def test_generated_requests_pass_every_schemathesis_check(case):
+    # Every built-in check (as `schemathesis run --checks all`): valid data accepted,
+    # invalid data refused, statuses, media types, headers and bodies as documented.
+    case.call_and_validate()
