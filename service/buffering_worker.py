@@ -21,6 +21,9 @@ serve it, from memory, so threads only ever compute. While receiving:
   as they come) gets the 413 problem as soon as that is known, without waiting for the
   rest, and the connection lingers shortly to let the client read it;
 * an idle kept-alive connection closes after ``UVDOSE_KEEPALIVE`` seconds, as in gthread;
+* the bodies a worker is receiving hold at most :data:`BUFFER_BUDGET_BODIES` largest bodies
+  of memory (each reserves its length, or the limit when chunked, once its headers are in);
+  a request with no room waits, its bytes left to TCP, until earlier ones go to the threads;
 * ``Expect: 100-continue`` is answered once the headers are in and the body is not too
   large, so a client waiting for it sends its body.
 
@@ -54,10 +57,15 @@ from gunicorn import http
 from gunicorn.workers import gthread
 
 RECV_BYTES = 256 * 1024
-LINGER_S = 2.0
-"""After a 408 or 413 the connection stays open this long, its input read and dropped, so
-the client can read the answer before the close (RFC 9112 §9.6); common practice, no source."""
-LINGER_MAX_BYTES = 4 * 1024 * 1024
+BUFFER_BUDGET_BODIES = 8
+"""A worker buffers at most this many largest bodies (8 x 16 MiB by default) across all the
+requests it is receiving; past it, reading pauses until requests go to the threads."""
+LINGER_S = 3.0
+LINGER_MAX_BYTES = 64 * 1024 * 1024
+"""After a 400, 408 or 413 from the event loop, the connection stays open up to LINGER_S
+and LINGER_MAX_BYTES, its input read and dropped, so that a client still sending its body
+(most do not wait for ``100 Continue``) gets to read the answer instead of a reset (RFC 9112
+§9.6). Dropping input costs no memory; the figures are common practice, no source."""
 REPORT_BEFORE_KILL_S = 1.5  # the event loop wakes at least once a second
 STOP_MARGIN_FRACTION, STOP_MARGIN_MIN_S, STOP_MARGIN_MAX_S = 0.2, 2.0, 5.0
 """Share of the graceful timeout kept for answering once running requests are stopped
@@ -92,6 +100,10 @@ class RequestFraming:
         self._chunked = False
         self._pos = 0  # chunked: where the next unread chunk-size line (or trailer) starts
         self._state = "size"
+
+    @property
+    def chunked(self) -> bool:
+        return self._chunked
 
     @property
     def headers_complete(self) -> bool:
@@ -215,6 +227,7 @@ class BufferedConn(gthread.TConn):
         self.linger_until: float | None = None
         self.lingered_bytes = 0
         self.sent_continue = False
+        self.reserved_bytes = 0  # of the worker's buffer budget, while its body is received
 
     def init(self) -> None:
         if not self.initialized and not self.cfg.is_ssl:
@@ -240,6 +253,9 @@ class BufferingWorker(gthread.ThreadWorker):
         self.max_header_bytes = (self.cfg.limit_request_line + 2
                                  + self.cfg.limit_request_fields * (self.cfg.limit_request_field_size + 2) + 2)
         self.receiving: dict[int, BufferedConn] = {}  # by file descriptor
+        self.paused: dict[int, BufferedConn] = {}  # headers in, body waiting for budget (oldest first)
+        self.buffer_budget_bytes = BUFFER_BUDGET_BODIES * self.max_body_bytes
+        self.reserved_bytes = 0  # body bytes the admitted requests may still buffer
         self.in_threads: set[BufferedConn] = set()
         self.cut_report_at: float | None = None  # when stopping: when to log what the drain will cut
 
@@ -276,6 +292,23 @@ class BufferingWorker(gthread.ThreadWorker):
                 return
         self.poller.register(conn.sock, selectors.EVENT_READ, partial(self._readable, conn))
 
+    def _admit(self, conn: BufferedConn) -> bool:
+        """Reserve memory for ``conn``'s body (its length, or the limit when chunked); False
+        when the budget has no room. A lone request is always admitted, so the oldest
+        request waiting always gets its turn and no set of waiting clients can lock out
+        the rest."""
+        framing = conn.framing
+        need = self.max_body_bytes if framing.chunked else framing.body_bytes
+        if self.reserved_bytes and self.reserved_bytes + need > self.buffer_budget_bytes:
+            return False
+        conn.reserved_bytes = need
+        self.reserved_bytes += need
+        return True
+
+    def _release(self, conn: BufferedConn) -> None:
+        self.reserved_bytes -= conn.reserved_bytes
+        conn.reserved_bytes = 0
+
     def _readable(self, conn: BufferedConn, _sock) -> None:
         try:
             data = conn.sock.recv(RECV_BYTES)
@@ -289,10 +322,13 @@ class BufferingWorker(gthread.ThreadWorker):
                 self._drop(conn)
             return
         if not data:
-            if conn.inbox.buffer:
-                self.log.info("client closed its connection inside a request (%d bytes received); "
-                              "nothing was computed", len(conn.inbox.buffer))
-            self._drop(conn)
+            if not conn.inbox.buffer:
+                self._drop(conn)
+                return
+            # The client ended its side inside a request: it may still read the 400.
+            self.log.warning("client cut off: connection ended inside a request (%d bytes received); "
+                             "answered 400, nothing computed", len(conn.inbox.buffer))
+            self._answer_and_linger(conn, _incomplete_answer(len(conn.inbox.buffer)))
             return
         if conn.first_byte_at is None:
             conn.first_byte_at = time.monotonic()
@@ -308,6 +344,7 @@ class BufferingWorker(gthread.ThreadWorker):
         if framing.headers_complete and not had_headers:
             conn.headers_at = time.monotonic()
         if verdict in ("complete", "handover"):
+            self._release(conn)
             del self.receiving[conn.sock.fileno()]
             conn.data_ready = True  # gthread must not wait for data: it is here
             self.in_threads.add(conn)
@@ -320,12 +357,24 @@ class BufferingWorker(gthread.ThreadWorker):
             self._answer_and_linger(conn, _too_large_answer(framing.body_bytes, self.max_body_bytes,
                                                             framing.body_bytes_exact))
             return False
+        if framing.headers_complete and not conn.reserved_bytes and not self._admit(conn):
+            # No room for the body yet: leave its bytes with the kernel (TCP holds the client
+            # back) until admitted requests go to the threads; its timeouts still run.
+            self.paused[conn.sock.fileno()] = conn
+            return True
         if framing.expects_continue and framing.headers_complete and not conn.sent_continue:
             conn.sent_continue = True
             _send_now(conn.sock, b"HTTP/1.1 100 Continue\r\n\r\n")
         return False
 
+    def _unpause(self, conn: BufferedConn) -> None:
+        """Take ``conn`` off the paused list, back in the poller (to linger on it)."""
+        if self.paused.pop(conn.sock.fileno(), None) is not None:
+            self.poller.register(conn.sock, selectors.EVENT_READ, partial(self._readable, conn))
+
     def _answer_and_linger(self, conn: BufferedConn, answer: bytes) -> None:
+        self._release(conn)
+        self._unpause(conn)
         if answer:
             _send_now(conn.sock, answer)
         try:
@@ -338,6 +387,8 @@ class BufferingWorker(gthread.ThreadWorker):
     def _drop(self, conn: BufferedConn) -> None:
         fd = conn.sock.fileno()
         self.receiving.pop(fd, None)
+        self.paused.pop(fd, None)
+        self._release(conn)
         try:
             self.poller.unregister(conn.sock)
         except (KeyError, ValueError, OSError):
@@ -345,7 +396,18 @@ class BufferingWorker(gthread.ThreadWorker):
         self.nr_conns -= 1
         conn.close()
 
+    def _resume_paused(self) -> None:
+        while self.paused:
+            fd, conn = next(iter(self.paused.items()))
+            if not self._admit(conn):
+                return
+            del self.paused[fd]
+            if self._judge(conn):  # its whole body may be buffered already
+                continue
+            self.poller.register(conn.sock, selectors.EVENT_READ, partial(self._readable, conn))
+
     def _expire_receiving(self) -> None:
+        self._resume_paused()
         now = time.monotonic()
         for conn in list(self.receiving.values()):
             if conn.linger_until is not None:
@@ -364,7 +426,7 @@ class BufferingWorker(gthread.ThreadWorker):
                 self.log.warning("client cut off: request body not complete after %.0f s (%d bytes "
                                  "received%s); answered 408, nothing computed", self.body_timeout_s,
                                  len(conn.inbox.buffer) - framing.header_end,
-                                 f" of {framing.body_bytes}" if not framing._chunked else ", chunked")
+                                 f" of {framing.body_bytes}" if not framing.chunked else ", chunked")
                 self._answer_and_linger(conn, _timeout_answer("body", self.body_timeout_s))
 
     def murder_pending(self) -> None:
@@ -382,6 +444,11 @@ class BufferingWorker(gthread.ThreadWorker):
         if computing or receiving:
             self.log.warning("stopped after the %d s graceful timeout: cut %d requests in progress and %d "
                              "still being received", self.cfg.graceful_timeout, computing, receiving)
+
+    def handle_request(self, req, conn):
+        if getattr(conn, "sent_continue", False):
+            req._expected_100_continue = False  # answered already, from the event loop
+        return super().handle_request(req, conn)
 
     # -- after a request -----------------------------------------------------------------
 
@@ -522,6 +589,15 @@ def _too_large_answer(received: int, limit: int, exact: bool) -> bytes:
     return _problem_answer(413, "Content Too Large",
                            problem_body(problem.status, problem.title, problem.detail, TYPE_PREFIX + problem.slug,
                                         **problem.extensions))
+
+
+def _incomplete_answer(received: int) -> bytes:
+    from uvdose.service.problems import TYPE_PREFIX, problem_body
+    from uvdose.service.request_body import incomplete_body
+
+    problem = incomplete_body(f"The connection ended after {received} bytes, inside the request.")
+    return _problem_answer(400, "Bad Request", problem_body(problem.status, problem.title, problem.detail,
+                                                             TYPE_PREFIX + problem.slug))
 
 
 def _timeout_answer(part: str, seconds: float) -> bytes:

@@ -206,3 +206,42 @@ def test_the_request_deadline_holds_where_the_worker_timeout_did_not(tmp_path):
     assert json.loads(refused.value.read())["type"] == "urn:uvdose:problem:deadline-exceeded"
     messages = [line.get("message", "") for line in _json_lines(tmp_path / "stderr.log")]
     assert any(m.startswith("request stopped: the request deadline of 2 s passed") for m in messages)
+
+
+def test_a_body_that_ends_early_is_a_400_and_nothing_is_computed(tmp_path):
+    process, base_url, _, logs = _start(tmp_path, "uvdose.service.app:create_app()", {})
+    body = json.dumps({"records": _plots(20)}).encode()
+    try:
+        with socket.create_connection(("127.0.0.1", _port(base_url)), timeout=10) as sock:
+            sock.sendall(JSON_HEAD + b"Content-Length: %d\r\n\r\n" % len(body) + body[:-100])
+            sock.shutdown(socket.SHUT_WR)  # the client's side ends, 100 bytes short
+            answer = _read_all(sock)
+    finally:
+        _clean_up(process, logs)
+    head, _, problem = answer.partition(b"\r\n\r\n")
+    assert head.startswith(b"HTTP/1.1 400")
+    assert json.loads(problem)["type"] == "urn:uvdose:problem:incomplete-body"
+    assert not [line for line in _json_lines(tmp_path / "stdout.log") if line.get("route") == "/v1/irradiance"]
+
+
+def test_bodies_past_the_memory_budget_wait_their_turn_and_are_all_answered(tmp_path):
+    limit = 60_000  # a worker then buffers at most 8 x 60 kB (service/buffering_worker.py)
+    process, base_url, _, logs = _start(tmp_path, "uvdose.service.app:create_app()",
+                                        {"UVDOSE_MAX_BODY_BYTES": str(limit), "UVDOSE_CACHE": "off"})
+    batch = json.dumps({"records": _plots(3)}).encode()
+    body = batch + b" " * (limit - 1000 - len(batch))  # JSON whitespace up to nearly the limit
+    socks = []
+    try:
+        for _ in range(20):  # 20 x 59 kB in flight: over twice the budget
+            sock = socket.create_connection(("127.0.0.1", _port(base_url)), timeout=30)
+            sock.sendall(JSON_HEAD + b"Connection: close\r\nContent-Length: %d\r\n\r\n" % len(body) + body[:-10])
+            socks.append(sock)
+        time.sleep(0.5)
+        for sock in socks:
+            sock.sendall(body[-10:])
+        answers = [_read_all(sock, timeout=30) for sock in socks]
+    finally:
+        for sock in socks:
+            sock.close()
+        _clean_up(process, logs)
+    assert [answer.split(b"\r\n", 1)[0] for answer in answers] == [b"HTTP/1.1 200 OK"] * 20
