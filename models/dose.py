@@ -94,6 +94,17 @@ class Nodes:
     is_edge: np.ndarray
 
 
+def trapezoid_node_counts(start_unix_s, end_unix_s, step_s: float) -> np.ndarray:
+    """(K,) the number of nodes :func:`trapezoid_nodes` puts in each window [start, end]:
+    both edges and every multiple of ``step_s`` strictly inside (windows valid, ``end`` not
+    before ``start``). Lets a caller count the work of windows before building any node."""
+    start = np.atleast_1d(np.asarray(start_unix_s, dtype=float))
+    end = np.atleast_1d(np.asarray(end_unix_s, dtype=float))
+    step = check_step(step_s)
+    interior = np.maximum(np.ceil(end / step) - 1.0 - np.floor(start / step), 0.0)
+    return interior.astype(np.int64) + 2
+
+
 def trapezoid_nodes(start_unix_s, end_unix_s, step_s: float) -> Nodes:
     """Nodes and composite-trapezoid weights for windows [start, end] (arrays (K,)).
 
@@ -107,9 +118,7 @@ def trapezoid_nodes(start_unix_s, end_unix_s, step_s: float) -> Nodes:
                   "must be finite and must not precede start", kind="window")
     step = check_step(step_s)
     first = np.floor(start / step) + 1.0
-    last = np.ceil(end / step) - 1.0
-    interior = np.maximum(last - first + 1.0, 0.0).astype(np.int64)
-    counts = interior + 2
+    counts = trapezoid_node_counts(start, end, step)
     window = np.repeat(np.arange(start.size), counts)
     offsets = np.cumsum(counts) - counts
     position = np.arange(window.size) - offsets[window]

@@ -114,6 +114,41 @@ def _validate(points: RoutePoints) -> None:
         raise RecordErrors(sorted(errors, key=lambda e: (e.index, e.point)))
 
 
+def _legs(points: RoutePoints) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(first point of each leg, its longitude change wrapped to ±180°, its heading) of
+    valid routes; a leg runs from point i to i+1 of the same route. Raises ``RecordErrors``
+    for bad points and routes (:func:`_validate`) and for routes whose heading is unknown."""
+    _validate(points)
+    lat, lon = points.latitude_deg, points.longitude_deg
+    starts_leg = np.append(points.route[1:] == points.route[:-1], False)
+    leg = np.flatnonzero(starts_leg)
+    dlon = (lon[leg + 1] - lon[leg] + 180.0) % 360.0 - 180.0
+    moving = (dlon != 0.0) | (lat[leg + 1] != lat[leg])
+    heading = initial_bearing_deg(lat[leg], lon[leg], lat[leg + 1], lon[leg] + dlon)
+    return leg, dlon, _carry_headings(heading, moving, points.route[leg], points.n_routes)
+
+
+def check_routes(points: RoutePoints) -> None:
+    """Raise ``RecordErrors`` for every fault :func:`route_doses` would find in ``points``
+    (bad points, routes of fewer than two points, unknown headings), without evaluating
+    anything: lets a caller validate every route before computing any."""
+    _legs(points)
+
+
+def route_sample_bound(points: RoutePoints, step_s: float = DEFAULT_ROUTE_STEP_S) -> np.ndarray:
+    """(R,) an upper bound of the samples :func:`route_doses` (or :func:`parked_doses`)
+    evaluates for each route at ``step_s``: its span over the step, plus two per leg (a
+    run of legs, or a parked leg, has both edges as nodes). Valid points assumed."""
+    step = dose.check_step(step_s)
+    first = np.full(points.n_routes, np.inf)
+    last = np.full(points.n_routes, -np.inf)
+    np.minimum.at(first, points.route, points.time_unix_s)
+    np.maximum.at(last, points.route, points.time_unix_s)
+    counts = np.bincount(points.route, minlength=points.n_routes)
+    span = np.where(counts > 0, last - first, 0.0)
+    return np.ceil(span / step).astype(np.int64) + 2 * counts
+
+
 @dataclass
 class RouteDoses:
     """Per-route results, arrays (R,): doses {name: (R,)} on the driver-side receiver,
@@ -150,22 +185,14 @@ def route_doses(points: RoutePoints, evaluate: dose.Evaluator,
         raise ValueError("roof_cutoff_elevation_deg must be in [0, 90]")
     if not 0.0 <= sky_view_factor <= 1.0:
         raise ValueError("sky_view_factor must be in [0, 1]")
-    _validate(points)
     n_routes = points.n_routes
     t, lat, lon = points.time_unix_s, points.latitude_deg, points.longitude_deg
-
-    # Legs: point i to i+1 of the same route (the last point of a route starts none).
-    starts_leg = np.append(points.route[1:] == points.route[:-1], False)
-    leg = np.flatnonzero(starts_leg)
+    leg, dlon, heading = _legs(points)
     leg_route = points.route[leg]
     leg_s = t[leg + 1] - t[leg]
     parked = points.stop[leg]
     lost = points.gap[leg] & ~parked
     driving = ~parked & ~lost
-    dlon = (lon[leg + 1] - lon[leg] + 180.0) % 360.0 - 180.0
-    moving = (dlon != 0.0) | (lat[leg + 1] != lat[leg])
-    heading = initial_bearing_deg(lat[leg], lon[leg], lat[leg + 1], lon[leg] + dlon)
-    heading = _carry_headings(heading, moving, leg_route, n_routes)
 
     # Driving runs: maximal chains of consecutive driving legs of one route.
     run_start = driving & ~np.concatenate([[False], driving[:-1] & (leg_route[1:] == leg_route[:-1])])

@@ -115,6 +115,20 @@ SETTINGS: tuple[Setting, ...] = (
     _same("UVDOSE_MAX_WEATHER_READINGS", 200_000, _whole_number(1),
           "Most weather-series readings (the `weather` table of a field or window dose request) "
           "in one request; more get a 413 problem."),
+    _same("UVDOSE_MAX_ROUTE_POINTS", 500_000, _whole_number(2),
+          "Most route points (fixes) in one routes request, all routes together; more get a 413 problem."),
+    _same("UVDOSE_MAX_SAMPLE_SPECTRA", 6_000_000, _whole_number(1),
+          "Most work one dose request may imply, in engine samples × action spectra (about 25 s "
+          "on one core); more get a 413 problem pointing to the jobs API."),
+    _same("UVDOSE_CHUNK_SAMPLE_SPECTRA", 250_000, _whole_number(1),
+          "Dose requests are computed in chunks of records of at most this much work (samples × "
+          "spectra), which bounds a worker's memory; one record implying more gets a 413 problem."),
+    _same("UVDOSE_MAX_ANSWER_BYTES", 32 * 1024 * 1024, _whole_number(1),
+          "Largest whole JSON dose answer, estimated before any work; larger get a 413 problem "
+          "(stream it as NDJSON or CSV, or submit a job)."),
+    _same("UVDOSE_MAX_STREAMED_ANSWER_BYTES", 256 * 1024 * 1024, _whole_number(1),
+          "Largest streamed (NDJSON or CSV) dose answer, estimated before any work; larger get a "
+          "413 problem pointing to the jobs API."),
     Setting("UVDOSE_MAX_BODY_BYTES", "MAX_CONTENT_LENGTH", 16 * 1024 * 1024, _whole_number(1),
             "Largest request body in bytes; larger bodies get a 413 problem."),
     _same("UVDOSE_REQUEST_DEADLINE_S", 60.0, _positive_number,

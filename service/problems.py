@@ -103,6 +103,19 @@ PROBLEM_TYPES: tuple[ProblemType, ...] = (
                 "(`deadline_s`); the work stopped between two parts of the batch and nothing is "
                 "answered but this problem (logged). `Retry-After` says when to try again.",
                 "Retry later, or split the batch (smaller requests finish within the deadline)."),
+    ProblemType("too-much-work", 413, "The request implies more work than one request may do",
+                "A dose request implies more engine samples × action spectra than one synchronous "
+                "request may do (`quantity` `sample_spectra`), or one record more than one chunk "
+                "computes at once (`record_sample_spectra`, with its `index` and `id`); `asked`, "
+                "`limit` and `setting` say how much. Counted from the request: nothing was computed.",
+                "Submit the same body as a job (`jobs`: the jobs API), split the request, or ask for "
+                "less (fewer spectra, a longer `step_s`, shorter windows or seasons)."),
+    ProblemType("answer-too-large", 413, "The answer would be larger than one request may give",
+                "The answer's estimated size (`asked`, bytes) is over the limit for a whole JSON "
+                "answer or for a streamed one (`limit`, `setting`). Estimated from the request: "
+                "nothing was computed.",
+                "Ask for the answer streamed (`Accept: application/x-ndjson` or `text/csv`), submit "
+                "a job (`jobs`), or split the request."),
     ProblemType("unsupported-media-type", 415, "Unsupported Media Type",
                 "The body is neither `application/json` nor `text/csv` (where the endpoint takes CSV).",
                 "Send the body with one of the media types the operation lists."),

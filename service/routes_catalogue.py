@@ -68,7 +68,12 @@ def catalogue():
         "limits": {"max_records": current_app.config["UVDOSE_MAX_RECORDS"],
                    "max_body_bytes": current_app.config["MAX_CONTENT_LENGTH"],
                    "max_full_solve_records": current_app.config["UVDOSE_MAX_FULL_SOLVE_RECORDS"],
-                   "max_weather_readings": current_app.config["UVDOSE_MAX_WEATHER_READINGS"]},
+                   "max_weather_readings": current_app.config["UVDOSE_MAX_WEATHER_READINGS"],
+                   "max_route_points": current_app.config["UVDOSE_MAX_ROUTE_POINTS"],
+                   "max_sample_spectra": current_app.config["UVDOSE_MAX_SAMPLE_SPECTRA"],
+                   "chunk_sample_spectra": current_app.config["UVDOSE_CHUNK_SAMPLE_SPECTRA"],
+                   "max_answer_bytes": current_app.config["UVDOSE_MAX_ANSWER_BYTES"],
+                   "max_streamed_answer_bytes": current_app.config["UVDOSE_MAX_STREAMED_ANSWER_BYTES"]},
     })
     # Behind API keys the answer is for key holders only: no shared cache may keep it.
     return cacheable(response, shared=not current_app.extensions["uvdose_auth"].enabled)

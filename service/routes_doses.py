@@ -27,8 +27,8 @@ Feature ``routes[3].geometry.coordinates[7][1]`` and ``routes[3].properties.time
 from __future__ import annotations
 
 import hashlib
-from dataclasses import dataclass
-from typing import Any, Mapping
+from dataclasses import dataclass, replace
+from typing import Any, Callable, Mapping
 
 import numpy as np
 from flask import Blueprint, Response, current_app, request
@@ -37,10 +37,10 @@ from marshmallow import fields, validate
 from uvdose.models import MODEL_VERSION, clouds, dose, exposure, filters, vehicle_routes
 from uvdose.models.record_errors import RecordError
 from uvdose.models.spectral_grid import WAVELENGTH_NM
-from uvdose.service import engine_gateway, metrics, uncertainty_fields
-from uvdose.service import cautions
+from uvdose.service import cautions, dose_answers, engine_gateway, metrics, uncertainty_fields, work_bounds
 from uvdose.service.column_checks import check_columns
-from uvdose.service.negotiation import JSON_MEDIA_TYPE, produces
+from uvdose.service.dose_answers import STREAMED_MEDIA_TYPES, Chunk, DoseAnswer
+from uvdose.service.negotiation import CSV_MEDIA_TYPE, JSON_MEDIA_TYPE, NDJSON_MEDIA_TYPE, produces
 from uvdose.service.problems import (FieldError, NameRecordError, Problem, by_schema, invalid_records,
                                      records_named)
 from uvdose.service.request_body import read_body
@@ -81,7 +81,6 @@ from uvdose.service.weather_series_table import (
 )
 from uvdose.service.wire_formats import (
     given_columns,
-    json_response,
     load_options,
     negotiate,
     read_batch,
@@ -100,11 +99,11 @@ ROUTES_ROUTE = "/v1/doses/routes"
 MAX_WINDOW_S = 31 * 86400.0
 """Longest time window accepted (31 days): bounds the work of one record."""
 MAX_SEASON_DAYS = 366
-MAX_ROUTE_POINTS = 500_000
-"""Points accepted in one routes request, all routes together."""
 MAX_ROUTE_SPAN_S = MAX_WINDOW_S
 """Longest time from a route's first point to its last (31 days, as for a window): bounds
 the samples of one route before any is allocated."""
+ANSWER_MEDIA_TYPES = (JSON_MEDIA_TYPE, NDJSON_MEDIA_TYPE, CSV_MEDIA_TYPE)
+"""What every dose endpoint answers in: whole JSON, or streamed NDJSON or CSV."""
 
 DEFAULT_WINDOW_SPECTRA = ("erythema", "actinic_icnirp")
 DEFAULT_FIELD_SPECTRA = ("plant_damage", "plant_growth", "erythema")
@@ -135,6 +134,7 @@ class DoseOptionsSchema(OptionsSchema):
     glazing = Text(validate=OneOfRegistry(lambda: filters.FILTERS.keys(), "glazing"))
     transmittance_curve = fields.Nested(CurveSchema)
     ozone_climatology = OZONE_CLIMATOLOGY_OPTION
+    answer_layout = Text(validate=validate.OneOf(["records", "columns"], error="must be 'records' or 'columns'"))
 
 
 def _options_problem(field: str, reason: str) -> Problem:
@@ -168,11 +168,53 @@ def _exposure_rows(doses: Mapping[str, np.ndarray], final: Mapping[str, np.ndarr
 
 
 def _read_records(record_schema, options_schema):
-    """(validated batch, options) of a JSON records/columns body."""
+    """(validated batch, options, layout of a whole JSON answer) of a JSON records/columns body."""
     negotiate(request)
     batch_request = read_batch(request, record_schema=record_schema, options_schema=options_schema,
                                max_records=current_app.config["UVDOSE_MAX_RECORDS"])
-    return batch_request.batch, batch_request.options
+    options = batch_request.options
+    layout = options.get("answer_layout") or ("columns" if batch_request.layout == "columns" else "records")
+    return batch_request.batch, options, layout
+
+
+def _id_bytes(ids) -> int:
+    """Bytes the ids take in an answer (with their quotes), for its size estimate."""
+    return sum(len(text.encode("utf-8")) + 2 for text in ids.tolist() if isinstance(text, str))
+
+
+def _bounded(kind: str, per_record: np.ndarray, ids, rows: int, spectra: int, id_bytes: int,
+             rows_per_record: int = 1) -> tuple[str, list]:
+    """(the answer's media type, the chunks of records to compute) once the request's work
+    (``per_record``: samples × spectra of each record) and its answer's estimated size are
+    within the limits (:mod:`service.work_bounds`); else a 413 problem, nothing computed."""
+    limits = work_bounds.Limits.of(current_app.config)
+    work_bounds.check_work(per_record, ids, kind, limits)
+    media_type = negotiate(request)
+    estimate = work_bounds.answer_bytes(kind, media_type, rows, spectra, id_bytes)
+    work_bounds.check_answer(estimate, media_type in STREAMED_MEDIA_TYPES, limits)
+    return media_type, work_bounds.record_chunks(per_record, limits.chunk_sample_spectra, rows_per_record)
+
+
+def _shifted(name: NameRecordError, offset: int) -> NameRecordError:
+    """``name`` for errors of a chunk whose first record is record ``offset``."""
+    def named(error: RecordError) -> FieldError:
+        error.index = int(error.index) + offset
+        return name(error)
+
+    return named
+
+
+def _steps_part(steps, part: slice):
+    """The weather series of the records in ``part`` (``None`` without a weather table)."""
+    if steps is None:
+        return None
+    keep = (steps.owner >= part.start) & (steps.owner < part.stop)
+    return replace(steps, owner=steps.owner[keep] - part.start, start_unix_s=steps.start_unix_s[keep],
+                   end_unix_s=steps.end_unix_s[keep], cmf=steps.cmf[keep], kind=steps.kind[part])
+
+
+def _count(route: str, n: int) -> Callable[[int], None]:
+    return lambda rows: metrics.count_records(route, n)
 
 
 def _record_id(ids, index: int):
@@ -254,9 +296,9 @@ def _cmf_columns(columns: Mapping[str, np.ndarray], ids) -> np.ndarray:
 
 
 @blueprint.post(WINDOWS_ROUTE)
-@produces(JSON_MEDIA_TYPE)
+@produces(*ANSWER_MEDIA_TYPES)
 def windows() -> Response:
-    batch, options = _read_records(_WINDOW_RECORDS, _WINDOW_OPTIONS)
+    batch, options, layout = _read_records(_WINDOW_RECORDS, _WINDOW_OPTIONS)
     cols = dict(batch.columns)
     start, end = cols.pop("time_unix_s"), cols.pop("end_unix_s")
     length = end - start
@@ -277,29 +319,38 @@ def windows() -> Response:
     spectra = list(options.get("spectra") or DEFAULT_WINDOW_SPECTRA)
     step_s = float(options.get("step_s") or dose.DEFAULT_WINDOW_STEP_S)
     transmittance, label = _transmittance(options)
+    work = dose.trapezoid_node_counts(start, end, step_s) * len(spectra)
+    media_type, parts = _bounded("windows", work, batch.ids, len(batch), len(spectra), _id_bytes(batch.ids))
     evaluate = engine_gateway.current(options.get("ozone_climatology")).dose_evaluator(spectra, transmittance, label, "windows")
-    with records_named(by_schema(_WINDOW_RECORDS, batch.ids), len(batch)):
-        out = dose.window_doses(cols, start, end, evaluate, step_s=step_s, spectra=spectra, cloud_steps=steps)
-    metrics.count_records(WINDOWS_ROUTE, len(batch))
-    share = _window_share(steps, out, length)
-    doses = out["dose_j_m2"]
-    columns: dict[str, list] = {
-        "id": batch.ids.tolist(), "start": iso_utc(start), "end": iso_utc(end),
-        "dose_j_m2": rows_from_columns({k: np.asarray(v).tolist() for k, v in doses.items()}),
-        "peak_uv_index": np.asarray(out["peak_uv_index"]).tolist(),
-        "cloud_factor": [None if np.isnan(x) else x for x in cols["cloud_modification_factor"].tolist()],
-        "uncertainty": _uncertainty_objects(out["relative_sigma"], len(batch),
-                                            source_used(steps, share, cols["cloud_source"]).tolist()),
-        "clouds": provenance(np.full(len(batch), "", dtype=object) if steps is None else steps.kind, share, outside),
-    }
-    columns.update(_exposure_rows(doses, out["final_rate_w_m2"]))
-    if "icnirp_limit_fraction" in columns:
-        columns["limit_period_exceeded"] = _longer_than_limit_period(length)
-    results = rows_from_columns(columns)
-    body = _common(spectra, step_s, label, cautions.DOSE_CAUTION, results[:1])
-    body["samples"] = out["samples"]
-    body["results"] = results
-    return json_response(body)
+    name = by_schema(_WINDOW_RECORDS, batch.ids)
+
+    def chunk(part: slice) -> Chunk:
+        part_steps = _steps_part(steps, part)
+        part_cols = {key: values[part] for key, values in cols.items()}
+        with records_named(_shifted(name, part.start), len(batch)):
+            out = dose.window_doses(part_cols, start[part], end[part], evaluate, step_s=step_s, spectra=spectra,
+                                    cloud_steps=part_steps)
+        share = _window_share(part_steps, out, length[part])
+        doses = out["dose_j_m2"]
+        n = part.stop - part.start
+        columns: dict[str, list] = {
+            "id": batch.ids[part].tolist(), "start": iso_utc(start[part]), "end": iso_utc(end[part]),
+            "dose_j_m2": rows_from_columns({k: np.asarray(v).tolist() for k, v in doses.items()}),
+            "peak_uv_index": np.asarray(out["peak_uv_index"]).tolist(),
+            "cloud_factor": [None if np.isnan(x) else x for x in part_cols["cloud_modification_factor"].tolist()],
+            "uncertainty": _uncertainty_objects(out["relative_sigma"], n,
+                                                source_used(part_steps, share, part_cols["cloud_source"]).tolist()),
+            "clouds": provenance(np.full(n, "", dtype=object) if part_steps is None else part_steps.kind, share,
+                                 outside[part]),
+        }
+        columns.update(_exposure_rows(doses, out["final_rate_w_m2"]))
+        if "icnirp_limit_fraction" in columns:
+            columns["limit_period_exceeded"] = _longer_than_limit_period(length[part])
+        return Chunk(columns, out["samples"])
+
+    answer = DoseAnswer(envelope=lambda first: _common(spectra, step_s, label, cautions.DOSE_CAUTION, [first.columns]),
+                        chunks=map(chunk, parts), layout=layout, on_complete=_count(WINDOWS_ROUTE, len(batch)))
+    return dose_answers.respond(answer, media_type)
 
 
 def _window_share(steps, out: Mapping[str, Any], length_s: np.ndarray) -> np.ndarray:
@@ -420,10 +471,55 @@ def _daily_inputs(daily: Any, n_fields: int, first: np.datetime64, n_days: int):
     return ozone, cmf, source
 
 
+_SUN_STATES = np.array(["polar_night", "ordinary", "midnight_sun"])
+
+
+def _field_work(n_fields: int, n_days: int, daily, step_s, grids: bool, n_spectra: int) -> np.ndarray:
+    """(F,) samples × spectra of each field's season: its days' nodes (Gauss–Legendre, or
+    at most a whole day's trapezoid nodes), again for the days whose clear-sky reference
+    is evaluated anew (operator grids in use, or where the ``daily`` (ozone, CMF) arrays
+    (F, D) give ozone or a cloud factor 0; ``daily`` ``None``: no daily table)."""
+    per_day = dose.DEFAULT_GAUSS_NODES if step_s is None else int(_SECONDS_PER_DAY // float(step_s)) + 3
+    if grids:
+        again = np.full(n_fields, n_days)
+    elif daily is None:
+        again = np.zeros(n_fields, np.int64)
+    else:
+        ozone, cmf = daily
+        again = (~np.isnan(ozone) | (cmf == 0.0)).sum(axis=1)
+    return (n_days + again) * per_day * n_spectra
+
+
+def _field_day_columns(season, ids: list, dates: list[str], steps, cloud_source: np.ndarray) -> dict[str, list]:
+    """One entry per field and day (fields first), ``id`` first, then the day's members."""
+    n_fields, n_days = season.sun_state.shape
+    share = np.zeros((n_fields, n_days)) if steps is None else season.series_share_of_daylight
+    sources = source_used(steps, share, cloud_source).ravel().tolist()
+    outside = np.vectorize(_DAILY_CLOUD_WIRES.get, otypes=[object])(cloud_source)
+    day_clouds = provenance(np.full((n_fields, 1), "", dtype=object) if steps is None else steps.kind[:, None],
+                            share, outside)
+    cells = [(f, d) for f in range(n_fields) for d in range(n_days)]
+    return {
+        "id": np.repeat(np.asarray(ids, dtype=object), n_days).tolist(), "day": dates * n_fields,
+        "sunrise": iso_utc(season.sunrise_unix_s.ravel()), "sunset": iso_utc(season.sunset_unix_s.ravel()),
+        "sun": _SUN_STATES[season.sun_state.ravel() + 1].tolist(),
+        "dose_j_m2": rows_from_columns({k: v.ravel().tolist() for k, v in season.daily_dose_j_m2.items()}),
+        "season_total_j_m2": rows_from_columns({k: v.ravel().tolist() for k, v in season.season_dose_j_m2.items()}),
+        "ratio_to_clear_sky": rows_from_columns({k: np.where(np.isnan(v), None, v).ravel().tolist()
+                                                 for k, v in season.ratio_to_clear_sky.items()}),
+        "peak_uv_index": season.peak_uv_index.ravel().tolist(),
+        "clouds": [entry for row in day_clouds for entry in row],
+        "uncertainty": [uncertainty_fields.dose_object(season.daily_relative_sigma, cell, source)
+                        for cell, source in zip(cells, sources)],
+        "season_total_uncertainty": [uncertainty_fields.dose_object(season.season_relative_sigma, cell)
+                                     for cell in cells],
+    }
+
+
 @blueprint.post(FIELDS_ROUTE)
-@produces(JSON_MEDIA_TYPE)
+@produces(*ANSWER_MEDIA_TYPES)
 def field_doses() -> Response:
-    batch, options = _read_records(_FIELD_RECORDS, _FIELD_OPTIONS)
+    batch, options, layout = _read_records(_FIELD_RECORDS, _FIELD_OPTIONS)
     first = np.datetime64(options["first_day"].isoformat(), "D")
     last = np.datetime64(options["last_day"].isoformat(), "D")
     n_days = int((last - first).astype(np.int64)) + 1
@@ -432,55 +528,47 @@ def field_doses() -> Response:
     if first < np.datetime64("1950-01-01") or last >= np.datetime64("2101-01-01"):
         raise _options_problem("first_day", "the season must lie within 1950–2100")
     days = (first + np.arange(n_days)).astype("datetime64[s]").astype(np.int64).astype(float)
-    ozone, cmf, cloud_source = _daily_inputs(options.get("daily"), len(batch), first, n_days)
-    steps = _weather_steps(options, _FIELD_WEATHER, batch.ids, batch.columns)
     spectra = list(options.get("spectra") or DEFAULT_FIELD_SPECTRA)
     # Gauss–Legendre over each daylight period unless the client asks for a step.
     step_s = options.get("step_s")
     quadrature = (dict(day_quadrature="trapezoid", step_s=float(step_s)) if step_s is not None
                   else dict(day_quadrature="gauss_legendre"))
-    transmittance, label = _transmittance(options)
     gateway = engine_gateway.current(options.get("ozone_climatology"))
-    evaluate = gateway.dose_evaluator(spectra, transmittance, label, "fields")
-    # Every input was validated above: an error from here on is the service's, not the client's.
-    season = dose.field_season(batch.columns, days, evaluate, ozone_du=ozone,
-                               cloud_modification_factor=cmf, cloud_source=cloud_source, spectra=spectra,
-                               reference_ozone=gateway.reference_ozone, cloud_steps=steps, **quadrature)
-    metrics.count_records(FIELDS_ROUTE, len(batch))
+    transmittance, label = _transmittance(options)
 
+    def bounded(daily) -> tuple[str, list]:
+        work = _field_work(len(batch), n_days, daily, step_s, bool(gateway.ozone_grids()), len(spectra))
+        return _bounded("fields", work, batch.ids, len(batch) * n_days, len(spectra),
+                        _id_bytes(batch.ids) * n_days, rows_per_record=n_days)
+
+    # Without a daily table the work is known before the (fields × days) inputs are built.
+    bound = bounded(None) if options.get("daily") is None else None
+    ozone, cmf, cloud_source = _daily_inputs(options.get("daily"), len(batch), first, n_days)
+    media_type, parts = bound or bounded((ozone, cmf))
+    steps = _weather_steps(options, _FIELD_WEATHER, batch.ids, batch.columns)
+    evaluate = gateway.dose_evaluator(spectra, transmittance, label, "fields")
     dates = [str(d) for d in first + np.arange(n_days)]
-    state_names = np.array(["polar_night", "ordinary", "midnight_sun"])
-    results = []
-    daily_lists = {k: v.tolist() for k, v in season.daily_dose_j_m2.items()}
-    season_lists = {k: v.tolist() for k, v in season.season_dose_j_m2.items()}
-    ratio_lists = {k: np.where(np.isnan(v), None, v).tolist() for k, v in season.ratio_to_clear_sky.items()}
-    sunrise = [iso_utc(row) for row in season.sunrise_unix_s]
-    sunset = [iso_utc(row) for row in season.sunset_unix_s]
-    states = state_names[season.sun_state + 1].tolist()
-    peak = season.peak_uv_index.tolist()
-    share = np.zeros((len(batch), n_days)) if steps is None else season.series_share_of_daylight
-    sources = source_used(steps, share, cloud_source).tolist()
-    outside = np.vectorize(_DAILY_CLOUD_WIRES.get, otypes=[object])(cloud_source)
-    day_clouds = provenance(np.full((len(batch), 1), "", dtype=object) if steps is None else steps.kind[:, None],
-                            share, outside)
-    for f, record_id in enumerate(batch.ids.tolist()):
-        day_rows = rows_from_columns({
-            "day": dates, "sunrise": sunrise[f], "sunset": sunset[f], "sun": states[f],
-            "dose_j_m2": rows_from_columns({k: v[f] for k, v in daily_lists.items()}),
-            "season_total_j_m2": rows_from_columns({k: v[f] for k, v in season_lists.items()}),
-            "ratio_to_clear_sky": rows_from_columns({k: v[f] for k, v in ratio_lists.items()}),
-            "peak_uv_index": peak[f], "clouds": day_clouds[f],
-            "uncertainty": [uncertainty_fields.dose_object(season.daily_relative_sigma, (f, d), sources[f][d])
-                            for d in range(n_days)],
-            "season_total_uncertainty": [uncertainty_fields.dose_object(season.season_relative_sigma, (f, d))
-                                         for d in range(n_days)],
-        })
-        results.append({"id": record_id, "days": day_rows})
-    body = _common(spectra, step_s, label, cautions.FIELD_CAUTION, [])
-    body.update(first_day=dates[0], last_day=dates[-1], samples=season.samples, results=results,
-                quadrature=(f"trapezoid:{step_s:g}s" if step_s is not None
-                            else f"gauss_legendre:{dose.DEFAULT_GAUSS_NODES}"))
-    return json_response(body)
+
+    def chunk(part: slice) -> Chunk:
+        # Every input was validated above: an error from here on is the service's, not the client's.
+        part_steps = _steps_part(steps, part)
+        season = dose.field_season({key: values[part] for key, values in batch.columns.items()}, days, evaluate,
+                                   ozone_du=ozone[part], cloud_modification_factor=cmf[part],
+                                   cloud_source=cloud_source[part], spectra=spectra,
+                                   reference_ozone=gateway.reference_ozone, cloud_steps=part_steps, **quadrature)
+        return Chunk(_field_day_columns(season, batch.ids[part].tolist(), dates, part_steps, cloud_source[part]),
+                     season.samples)
+
+    def envelope(_first: Chunk) -> dict[str, Any]:
+        body = _common(spectra, step_s, label, cautions.FIELD_CAUTION, [])
+        body.update(first_day=dates[0], last_day=dates[-1],
+                    quadrature=(f"trapezoid:{step_s:g}s" if step_s is not None
+                                else f"gauss_legendre:{dose.DEFAULT_GAUSS_NODES}"))
+        return body
+
+    answer = DoseAnswer(envelope=envelope, chunks=map(chunk, parts), layout=layout, rows_per_result=n_days,
+                        on_complete=_count(FIELDS_ROUTE, len(batch)))
+    return dose_answers.respond(answer, media_type)
 
 
 # -- routes ---------------------------------------------------------------------------
@@ -695,8 +783,16 @@ def _read_routes(raw_routes: list) -> tuple[vehicle_routes.RoutePoints, dict[str
     return points, per_route, ids, name_route_error
 
 
+def _route_part(points: vehicle_routes.RoutePoints, point_start: np.ndarray, part: slice) -> vehicle_routes.RoutePoints:
+    """The points of the routes in ``part``, their routes numbered from 0."""
+    a, b = int(point_start[part.start]), int(point_start[part.stop])
+    return vehicle_routes.RoutePoints(route=points.route[a:b] - part.start, time_unix_s=points.time_unix_s[a:b],
+                                      latitude_deg=points.latitude_deg[a:b], longitude_deg=points.longitude_deg[a:b],
+                                      stop=points.stop[a:b], gap=points.gap[a:b])
+
+
 @blueprint.post(ROUTES_ROUTE)
-@produces(JSON_MEDIA_TYPE)
+@produces(*ANSWER_MEDIA_TYPES)
 def route_doses() -> Response:
     negotiate(request)
     body = read_json_object(read_body(request), request.mimetype, "a `routes` array")
@@ -709,45 +805,60 @@ def route_doses() -> Response:
         raise _options_problem("routes", f"must be a non-empty array of at most {max_routes} routes")
     if len(raw_routes) > max_routes:
         raise too_many(len(raw_routes), max_routes, "routes")
-    if _route_count(raw_routes) > MAX_ROUTE_POINTS:
-        raise Problem(413, "too-many-records", "Too many records in one request",
-                      f"At most {MAX_ROUTE_POINTS} route points are accepted per request.",
-                      extensions={"max_records": MAX_ROUTE_POINTS})
+    max_points = current_app.config["UVDOSE_MAX_ROUTE_POINTS"]
+    sent = _route_count(raw_routes)
+    if sent > max_points:
+        raise too_many(sent, max_points, "route points", "UVDOSE_MAX_ROUTE_POINTS")
     points, per_route, ids, name_route_error = _read_routes(raw_routes)
+    n_routes = len(raw_routes)
+    with records_named(name_route_error, n_routes, "route"):
+        vehicle_routes.check_routes(points)
     spectra = list(options.get("spectra") or DEFAULT_ROUTE_SPECTRA)
     step_s = float(options.get("step_s") or vehicle_routes.DEFAULT_ROUTE_STEP_S)
     transmittance, label = _transmittance(options, default=DEFAULT_ROUTE_GLAZING)
     side = options.get("driver_side") or "left"
     cutoff = float(options.get("roof_cutoff_elevation_deg", vehicle_routes.DEFAULT_ROOF_CUTOFF_ELEVATION_DEG))
     sky_view = float(options.get("cab_sky_view_factor", vehicle_routes.DEFAULT_CAB_SKY_VIEW_FACTOR))
-    evaluate = engine_gateway.current(options.get("ozone_climatology")).dose_evaluator(spectra, transmittance, label, "routes")
-    with records_named(name_route_error, len(raw_routes), "route"):
-        out = vehicle_routes.route_doses(points, evaluate, per_route=per_route, driver_side=side,
-                                         step_s=step_s, roof_cutoff_elevation_deg=cutoff,
-                                         sky_view_factor=sky_view, spectra=spectra)
-    metrics.count_records(ROUTES_ROUTE, len(raw_routes))
-    columns: dict[str, list] = {
-        "id": ids.tolist(),
-        "driving_s": out.driving_s.tolist(), "parked_s": out.parked_s.tolist(), "gap_s": out.gap_s.tolist(),
-        "dose_j_m2": rows_from_columns({k: v.tolist() for k, v in out.dose_j_m2.items()}),
-        "peak_uv_index": out.peak_uv_index.tolist(),
-        "uncertainty": _uncertainty_objects(out.relative_sigma, len(ids)),
-    }
-    columns.update(_exposure_rows(out.dose_j_m2, out.final_rate_w_m2))
-    if "icnirp_limit_fraction" in columns:
-        first_fix = np.full(len(ids), np.inf)
-        last_fix = np.full(len(ids), -np.inf)
-        np.minimum.at(first_fix, points.route, points.time_unix_s)
-        np.maximum.at(last_fix, points.route, points.time_unix_s)
-        columns["limit_period_exceeded"] = _longer_than_limit_period(last_fix - first_fix)
-    columns["parked_time_excluded"] = (out.parked_s > 0).tolist()
-    if options["parked_dose"]:
-        open_sky = engine_gateway.current(options.get("ozone_climatology")).dose_evaluator(
-            spectra, None, "none", "routes-parked")
-        parked = vehicle_routes.parked_doses(points, open_sky, per_route=per_route, step_s=step_s, spectra=spectra)
-        columns["parked_dose_j_m2"] = rows_from_columns({k: v.tolist() for k, v in parked.items()})
-    results = rows_from_columns(columns)
-    response = _common(spectra, step_s, label, cautions.ROUTE_CAUTION, results[:1])
-    response.update(driver_side=side, roof_cutoff_elevation_deg=cutoff, cab_sky_view_factor=sky_view,
-                    samples=out.samples, results=results)
-    return json_response(response)
+    work = vehicle_routes.route_sample_bound(points, step_s) * len(spectra) * (2 if options["parked_dose"] else 1)
+    media_type, parts = _bounded("routes", work, ids, n_routes, len(spectra), _id_bytes(ids))
+    gateway = engine_gateway.current(options.get("ozone_climatology"))
+    evaluate = gateway.dose_evaluator(spectra, transmittance, label, "routes")
+    open_sky = gateway.dose_evaluator(spectra, None, "none", "routes-parked") if options["parked_dose"] else None
+    point_start = np.searchsorted(points.route, np.arange(n_routes + 1))
+
+    def chunk(part: slice) -> Chunk:
+        sub = _route_part(points, point_start, part)
+        sub_routes = {key: values[part] for key, values in per_route.items()}
+        with records_named(_shifted(name_route_error, part.start), n_routes, "route"):
+            out = vehicle_routes.route_doses(sub, evaluate, per_route=sub_routes, driver_side=side,
+                                             step_s=step_s, roof_cutoff_elevation_deg=cutoff,
+                                             sky_view_factor=sky_view, spectra=spectra)
+        n = part.stop - part.start
+        columns: dict[str, list] = {
+            "id": ids[part].tolist(),
+            "driving_s": out.driving_s.tolist(), "parked_s": out.parked_s.tolist(), "gap_s": out.gap_s.tolist(),
+            "dose_j_m2": rows_from_columns({k: v.tolist() for k, v in out.dose_j_m2.items()}),
+            "peak_uv_index": out.peak_uv_index.tolist(),
+            "uncertainty": _uncertainty_objects(out.relative_sigma, n),
+        }
+        columns.update(_exposure_rows(out.dose_j_m2, out.final_rate_w_m2))
+        if "icnirp_limit_fraction" in columns:
+            first_fix = np.full(n, np.inf)
+            last_fix = np.full(n, -np.inf)
+            np.minimum.at(first_fix, sub.route, sub.time_unix_s)
+            np.maximum.at(last_fix, sub.route, sub.time_unix_s)
+            columns["limit_period_exceeded"] = _longer_than_limit_period(last_fix - first_fix)
+        columns["parked_time_excluded"] = (out.parked_s > 0).tolist()
+        if open_sky is not None:
+            parked = vehicle_routes.parked_doses(sub, open_sky, per_route=sub_routes, step_s=step_s, spectra=spectra)
+            columns["parked_dose_j_m2"] = rows_from_columns({k: v.tolist() for k, v in parked.items()})
+        return Chunk(columns, out.samples)
+
+    def envelope(first: Chunk) -> dict[str, Any]:
+        response = _common(spectra, step_s, label, cautions.ROUTE_CAUTION, [first.columns])
+        response.update(driver_side=side, roof_cutoff_elevation_deg=cutoff, cab_sky_view_factor=sky_view)
+        return response
+
+    answer = DoseAnswer(envelope=envelope, chunks=map(chunk, parts), layout=options.get("answer_layout") or "records",
+                        on_complete=_count(ROUTES_ROUTE, n_routes))
+    return dose_answers.respond(answer, media_type)

@@ -52,6 +52,7 @@ def openapi_checker(openapi_spec):
     config = Config(extra_media_type_deserializers={
         "application/problem+json": json.loads,
         "text/csv": _text,
+        "application/x-ndjson": _text,
         "application/yaml": _text,
         "text/html": _text,
         "text/css": _text,

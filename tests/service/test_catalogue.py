@@ -45,7 +45,10 @@ def test_record_fields_state_the_ranges_that_validation_enforces(client, catalog
 def test_defaults_limits_and_caution(catalogue, make_app, contract_client_for):
     assert catalogue["default_spectra"] == ["erythema", "actinic_icnirp", "plant_damage"]
     assert catalogue["limits"] == {"max_records": 10_000, "max_body_bytes": 16 * 1024 * 1024,
-                                   "max_full_solve_records": 1000, "max_weather_readings": 200_000}
+                                   "max_full_solve_records": 1000, "max_weather_readings": 200_000,
+                                   "max_route_points": 500_000, "max_sample_spectra": 6_000_000,
+                                   "chunk_sample_spectra": 250_000, "max_answer_bytes": 32 * 1024 * 1024,
+                                   "max_streamed_answer_bytes": 256 * 1024 * 1024}
     assert "not a measurement" in catalogue["caution"]
     small = contract_client_for(make_app(UVDOSE_MAX_RECORDS=12, UVDOSE_MAX_FULL_SOLVE_RECORDS=5)).get(
         "/v1/catalogue").get_json()

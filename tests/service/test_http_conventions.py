@@ -89,7 +89,7 @@ def test_quality_values_and_wildcards_choose_among_what_is_offered(client):
 def test_406_comes_before_the_body_is_read(client):
     # A body that could not be read at all: the 406 is answered first.
     response = client.post("/v1/doses/windows", data=b"{not json", headers={
-        "Content-Type": "application/json", "Accept": "text/csv"})
+        "Content-Type": "application/json", "Accept": "application/yaml"})
     assert response.status_code == 406
 
 
@@ -200,4 +200,4 @@ def test_coding_negotiation_and_revalidation_through_gunicorn(gunicorn_server):
         assert http.get("/v1/catalogue", headers={"If-None-Match": tag}).status_code == 304
         assert http.get("/v1/catalogue", headers={"Accept": "text/csv"}).status_code == 406
         assert http.post("/v1/doses/routes", json=BODIES["/v1/doses/routes"],
-                         headers={"Accept": "text/csv"}).status_code == 406
+                         headers={"Accept": "application/yaml"}).status_code == 406

@@ -280,7 +280,7 @@ def test_array_limits_are_the_service_limits(spec):
     max_readings = settings_from_environment({})["UVDOSE_MAX_WEATHER_READINGS"]
     for name in ("FieldWeatherTable", "WindowWeatherTable"):
         assert {column["maxItems"] for column in schemas[name]["properties"].values()} == {max_readings}, name
-    points = routes_doses.MAX_ROUTE_POINTS
+    points = settings_from_environment({})["UVDOSE_MAX_ROUTE_POINTS"]
     assert schemas["PointRoute"]["properties"]["points"]["maxItems"] == points
     assert schemas["RouteGeometry"]["properties"]["coordinates"]["maxItems"] == points
     assert {schemas["RouteFeatureProperties"]["properties"][name]["maxItems"]
