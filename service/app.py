@@ -6,8 +6,8 @@ from typing import Any
 
 from flask import Flask
 
-from uvdose.service import (auth, cautions, cors, engine_gateway, metrics, negotiation, problems, request_log,
-                            request_deadline, response_compression, security_headers)
+from uvdose.service import (auth, cautions, cors, engine_gateway, jobs, metrics, negotiation, problems,
+                            request_log, request_deadline, response_compression, security_headers)
 from uvdose.service.config import settings_from_environment
 
 
@@ -34,6 +34,7 @@ def create_app(config: dict[str, Any] | None = None) -> Flask:
     metrics.init_app(app)
     negotiation.init_app(app)  # Accept against what each view produces, before any body is read
     engine_gateway.init_app(app)  # ozone resolver, cache, the engine's tables loaded now
+    jobs.init_app(app, create_app)  # the results store and job metadata; Dask at the first job
     _register_blueprints(app)
     return app
 
@@ -47,3 +48,4 @@ def _register_blueprints(app: Flask) -> None:
     app.register_blueprint(import_module("uvdose.service.routes_ozone").blueprint)
     app.register_blueprint(import_module("uvdose.service.routes_doses").blueprint)
     app.register_blueprint(import_module("uvdose.service.routes_pictures").blueprint)
+    app.register_blueprint(import_module("uvdose.service.routes_jobs").blueprint)

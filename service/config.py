@@ -175,6 +175,23 @@ SETTINGS: tuple[Setting, ...] = (
           "Comma-separated API keys; unset (and no key file) means authentication is off."),
     _same("UVDOSE_API_KEYS_FILE", None, _text,
           "File of API keys or their SHA-256 digests, one per line."),
+    # Jobs (POST /v1/jobs) on Dask distributed
+    _same("UVDOSE_DASK_SCHEDULER", None, _text,
+          "Address of an existing Dask scheduler (tcp://host:8786) that runs the jobs; unset means "
+          "an embedded local cluster on this machine's cores, started by the service itself."),
+    _same("UVDOSE_DASK_WORKERS", None, _whole_number(1),
+          "Worker processes of the embedded local cluster (default: one per core)."),
+    _same("UVDOSE_JOBS_STORE", None, _text,
+          "Results store of the jobs, a directory or any fsspec URL (s3://bucket/prefix) every API "
+          "instance and Dask worker can reach (default: uvdose-jobs in the system's temporary directory)."),
+    _same("UVDOSE_JOBS_METADATA_DIR", None, _text,
+          "Directory of the job metadata when REDIS_URL is unset (with it, the metadata is kept in Redis; "
+          "default: uvdose-jobs-metadata in the system's temporary directory)."),
+    _same("UVDOSE_JOB_PART_WORK", 20_000, _whole_number(1),
+          "Work per part of a job (records; field-days for fields; route points for routes): one part is "
+          "one Dask task and one downloadable piece of the result."),
+    _same("UVDOSE_JOB_TTL_S", 604_800.0, _positive_number,
+          "Seconds a finished (or cancelled) job and its results are kept before they expire (default 7 days)."),
     # Logs and metrics
     _same("UVDOSE_REQUEST_LOG", True, _switch,
           "One JSON line per request on stdout."),

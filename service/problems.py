@@ -126,6 +126,15 @@ PROBLEM_TYPES: tuple[ProblemType, ...] = (
                 "This deployment requires an API key and the request sent none, or one it does not "
                 "accept (`WWW-Authenticate` names the Bearer scheme).",
                 "Send the key as `X-API-Key: <key>` or `Authorization: Bearer <key>`."),
+    ProblemType("job-not-found", 404, "No such job",
+                "The job (or the part of it) named in the path is not known here: it was never "
+                "submitted, or it finished more than `UVDOSE_JOB_TTL_S` seconds ago and has expired.",
+                "Check the job's id; submit the batch again if it has expired."),
+    ProblemType("job-not-ready", 409, "The job's results are not ready",
+                "The whole result is asked for before the job has succeeded, or a part before it is "
+                "written (or the job was cancelled or failed).",
+                "Poll `GET /v1/jobs/{job_id}` until `state` is `succeeded`, or fetch the parts listed in "
+                "`parts_done`."),
     ProblemType("about:blank", 0, "the HTTP reason phrase",
                 "Plain HTTP errors: an unknown path (404), a method the path does not take (405, with "
                 "`Allow`), a body over the size limit (413), an unexpected failure (500, logged, no "

@@ -162,6 +162,21 @@ def on_exit(server) -> None:
 HOOKS = {"on_starting": on_starting, "child_exit": child_exit, "on_exit": on_exit}
 
 
+def embedded_dask_cluster() -> None:
+    """Without ``UVDOSE_DASK_SCHEDULER``, start the jobs' embedded Dask cluster (one for all
+    gunicorn workers, stopped with the server) and point the workers at it."""
+    import atexit
+
+    from uvdose.service import config, job_cluster
+
+    if os.environ.get("UVDOSE_DASK_SCHEDULER"):
+        return
+    workers = config.settings_from_environment()["UVDOSE_DASK_WORKERS"]
+    process, address = job_cluster.start_embedded_in_background(workers)
+    os.environ["UVDOSE_DASK_SCHEDULER"] = address
+    atexit.register(job_cluster.stop_embedded, process)
+
+
 def serve(bind: str | None = None, workers: int | None = None, config_path: Path | None = None) -> None:
     """Run gunicorn in this process until it is told to stop: :func:`gunicorn_settings` and
     :data:`HOOKS`, or the gunicorn config file ``config_path``; ``bind`` and ``workers``
@@ -172,6 +187,7 @@ def serve(bind: str | None = None, workers: int | None = None, config_path: Path
 
     pin_numeric_threads()  # before the app, and numpy, is imported
     metrics_directory()
+    embedded_dask_cluster()
 
     class Server(BaseApplication):
         def load_config(self) -> None:

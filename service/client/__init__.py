@@ -12,12 +12,12 @@ from uvdose.client.answers import (Catalogue, ColumnsAnswer, DoseAnswer, Irradia
 from uvdose.client.api import Client
 from uvdose.client.errors import (Busy, ConnectionFailed, InconsistentAnswer, InvalidRecords, NotAcceptable,
                                   ProblemError, RecordProblem, TooLarge, Unauthorized, UvdoseError)
-from uvdose.client.jobs import JobsNotAvailable
+from uvdose.client.jobs import JobFailed, Jobs, JobsNotAvailable
 from uvdose.client.parts import BodyTooLarge
 from uvdose.client.retries import NO_RETRY, RetryPolicy
 
 __all__ = [
     "BodyTooLarge", "Busy", "Catalogue", "Client", "ColumnsAnswer", "ConnectionFailed", "DoseAnswer", "InconsistentAnswer",
-    "InvalidRecords", "IrradianceAnswer", "JobsNotAvailable", "Limits", "NO_RETRY", "NotAcceptable", "OzoneAnswer",
+    "InvalidRecords", "IrradianceAnswer", "JobFailed", "Jobs", "JobsNotAvailable", "Limits", "NO_RETRY", "NotAcceptable", "OzoneAnswer",
     "ProblemError", "Readiness", "RecordProblem", "RetryPolicy", "TooLarge", "Unauthorized", "UvdoseError",
 ]

@@ -25,7 +25,7 @@ import orjson
 from uvdose.client import parts as batch_parts
 from uvdose.client.answers import Catalogue, DoseAnswer, IrradianceAnswer, Limits, OzoneAnswer, Readiness
 from uvdose.client.errors import InconsistentAnswer, RecordProblem, problem_error
-from uvdose.client.jobs import JobsNotOffered
+from uvdose.client.jobs import Jobs
 from uvdose.client.retries import RetryPolicy, send
 from uvdose.client.tables import Columns, as_columns, as_records, column_length
 
@@ -148,9 +148,9 @@ class Client:
         return self._text("/metrics", "text/plain")
 
     @property
-    def jobs(self) -> JobsNotOffered:
+    def jobs(self) -> Jobs:
         """The jobs API for batches too large for one synchronous call (see :mod:`uvdose.client.jobs`)."""
-        return JobsNotOffered()
+        return Jobs(self)
 
     # -- batches in columns ----------------------------------------------------------------
 

@@ -223,7 +223,8 @@ def test_compose_service_and_redis(compose, runtime, get_routes):
     assert uvdose["depends_on"]["redis"]["condition"] == "service_healthy"
     assert "/livez" in " ".join(uvdose["healthcheck"]["test"]) and "/livez" in get_routes
     command = redis["command"]
-    assert command[command.index("--maxmemory-policy") + 1] == "allkeys-lru"
+    # Only keys with a TTL may go: cache entries, a finished job's metadata; never a running job's.
+    assert command[command.index("--maxmemory-policy") + 1] == "volatile-lru"
     assert re.fullmatch(r"\d+mb", command[command.index("--maxmemory") + 1])
     grace = int(uvdose["stop_grace_period"].rstrip("s"))
     assert grace > int(uvdose["environment"]["UVDOSE_GRACEFUL_TIMEOUT"])
@@ -325,14 +326,14 @@ def test_hpa_scales_the_deployment_on_cpu():
     assert "cpu" in api["resources"]["requests"], "utilisation is measured against the request"
 
 
-def test_redis_url_points_at_the_redis_service_and_redis_is_a_bounded_lru_cache():
+def test_redis_url_points_at_the_redis_service_and_redis_evicts_only_expiring_keys():
     config = by_name("ConfigMap", "uvdose-config")["data"]
     match = re.fullmatch(r"redis://([\w-]+):(\d+)/\d+", config["REDIS_URL"])
     assert match
     service = by_name("Service", match.group(1))
     assert int(match.group(2)) in {p["port"] for p in service["spec"]["ports"]}
     args = container(by_name("Deployment", "uvdose-redis"), "redis")["args"]
-    assert args[args.index("--maxmemory-policy") + 1] == "allkeys-lru"
+    assert args[args.index("--maxmemory-policy") + 1] == "volatile-lru"
     memory_limit_mi = int(container(by_name("Deployment", "uvdose-redis"), "redis")["resources"]["limits"]["memory"].rstrip("Mi"))
     assert int(args[args.index("--maxmemory") + 1].rstrip("mb")) < memory_limit_mi
 
@@ -370,3 +371,58 @@ def test_every_setting_named_in_a_manifest_is_read_somewhere(compose, runtime):
     named |= {name for name in env_of(runtime) if name.startswith("UVDOSE_")}
     for name in sorted(named):
         assert f'"{name}"' in sources, f"{name} is set in a manifest but read nowhere"
+
+
+# ------------------------------------------------------------------------- jobs on Dask
+
+def _command_option(command: list[str], option: str) -> str:
+    return command[command.index(option) + 1]
+
+
+def test_the_api_and_the_workers_share_the_scheduler_and_the_results_store(compose):
+    config = by_name("ConfigMap", "uvdose-config")["data"]
+    match = re.fullmatch(r"tcp://([\w-]+):(\d+)", config["UVDOSE_DASK_SCHEDULER"])
+    assert match
+    scheduler_service = by_name("Service", match.group(1))
+    assert int(match.group(2)) in {p["port"] for p in scheduler_service["spec"]["ports"]}
+    scheduler = container(by_name("Deployment", "uvdose-dask-scheduler"), "scheduler")
+    assert scheduler["command"][:2] == ["dask", "scheduler"]
+    assert int(_command_option(scheduler["command"], "--port")) == int(match.group(2))
+    worker_deployment = by_name("Deployment", "uvdose-dask-worker")
+    worker = container(worker_deployment, "worker")
+    assert worker["command"][:3] == ["dask", "worker", config["UVDOSE_DASK_SCHEDULER"]]
+    assert _command_option(worker["command"], "--nthreads") == "1"
+    # The store is one volume, mounted where UVDOSE_JOBS_STORE says, in the API pods and the workers.
+    for deployment, name in ((by_name("Deployment", "uvdose"), "uvdose"), (worker_deployment, "worker")):
+        (mount,) = [m for m in container(deployment, name)["volumeMounts"] if m["mountPath"] == config["UVDOSE_JOBS_STORE"]]
+        (volume,) = [v for v in deployment["spec"]["template"]["spec"]["volumes"] if v["name"] == mount["name"]]
+        assert volume["persistentVolumeClaim"]["claimName"] == "uvdose-jobs"
+    claim = by_name("PersistentVolumeClaim", "uvdose-jobs")
+    assert claim["spec"]["accessModes"] == ["ReadWriteMany"]
+    # Workers keep the cache in process: only the API pods may reach Redis (networkpolicy.yaml).
+    env = {e["name"]: e.get("value") for e in worker["env"]}
+    assert env["REDIS_URL"] == "" and env["UVDOSE_CACHE"] == "memory"
+    # The worker's memory limit for Dask stays under the container's.
+    limit_mi = int(worker["resources"]["limits"]["memory"].rstrip("Mi"))
+    assert int(_command_option(worker["command"], "--memory-limit").rstrip("GiB")) * 1024 < limit_mi
+
+    services = compose["services"]
+    api_env = services["uvdose"]["environment"]
+    assert api_env["UVDOSE_DASK_SCHEDULER"] == "tcp://dask-scheduler:" + _command_option(
+        services["dask-scheduler"]["command"], "--port")
+    assert services["dask-worker"]["command"][2] == api_env["UVDOSE_DASK_SCHEDULER"]
+    store = api_env["UVDOSE_JOBS_STORE"]
+    assert services["dask-worker"]["environment"]["UVDOSE_JOBS_STORE"] == store
+    for name in ("uvdose", "dask-worker"):
+        assert f"jobs:{store}" in services[name]["volumes"]
+    assert "jobs" in compose["volumes"]
+
+
+def test_only_uvdose_pods_reach_the_dask_cluster():
+    policy = by_name("NetworkPolicy", "uvdose-dask")
+    (selected,) = policy["spec"]["podSelector"]["matchExpressions"]
+    assert set(selected["values"]) == {"dask-scheduler", "dask-worker"}
+    (rule,) = policy["spec"]["ingress"]
+    (source,) = rule["from"]
+    (allowed,) = source["podSelector"]["matchExpressions"]
+    assert set(allowed["values"]) == {"api", "dask-scheduler", "dask-worker"}

@@ -58,8 +58,15 @@ def openapi_checker(openapi_spec):
         "text/css": _text,
         "text/javascript": _text,
         "image/svg+xml": _text,
+        "application/x-ndjson": _text,
+        "application/vnd.apache.parquet": _binary,
     })
     return OpenAPI.from_dict(spec, config=config)
+
+
+def _binary(body) -> str:
+    """A binary body as the string its schema (``format: binary``) stands for."""
+    return f"<{len(body)} bytes>"
 
 
 def _text(body) -> str:

@@ -80,6 +80,8 @@ def test_every_json_example_validates_against_its_request_schema(openapi_spec):
 
 @pytest.mark.parametrize("example", EXAMPLES, ids=[f"{e.operation_id}-{e.name}" for e in EXAMPLES])
 def test_every_example_in_every_answer_format_carries_the_caution(client, openapi_spec, example):
+    if "{" in example.path:
+        pytest.skip("the path names a job; tests/service/test_jobs.py runs these on real jobs")
     operation = next(op for _, _, op in operations(openapi_spec) if op["operationId"] == example.operation_id)
     written = None  # the caution of the JSON answer, which the CSV column repeats
     for accept in success_media_types(operation):

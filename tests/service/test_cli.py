@@ -1,4 +1,8 @@
-"""The uvdose command: offline batches through the same schemas and engine, and `serve`."""
+"""The uvdose command: batches as jobs on a Dask cluster through the same endpoints, and `serve`.
+
+The batches run on one embedded cluster for the module (two worker processes), named to the
+command by ``UVDOSE_DASK_SCHEDULER`` as an operator would (``--scheduler`` is tested too).
+"""
 import csv
 import io
 import json
@@ -12,6 +16,18 @@ import pytest
 
 from uvdose.service.cli import EXIT_INVALID, main, run_batch
 from tests.service.conftest import REPO, free_loopback_port, stop, wait_until_answers
+
+@pytest.fixture(scope="module", autouse=True)
+def dask_scheduler():
+    from uvdose.service import job_cluster
+
+    with pytest.MonkeyPatch.context() as environment:
+        environment.setenv("UVDOSE_CACHE", "off")  # exact inputs, as the HTTP comparisons below
+        process, address = job_cluster.start_embedded(2)
+        environment.setenv("UVDOSE_DASK_SCHEDULER", address)
+        yield address
+        job_cluster.stop_embedded(process)
+
 
 # Demo scenario of our own: hourly checks on the invented "Combe Basse" orchard, 20 June.
 HOURS = [f"2026-06-20T{h:02d}:00:00+02:00" for h in range(5, 22)]
@@ -82,6 +98,41 @@ def test_a_bad_file_is_rejected_whole_with_the_problem_on_stderr(tmp_path, capsy
     problem = json.loads(capsys.readouterr().err)
     assert problem["errors"] == [{"index": 5, "id": "h5", "field": "lat", "reason": "must be between -90 and 90"}]
     assert not target.exists()
+
+
+def test_every_operation_reads_and_writes_csv_json_and_parquet(tmp_path, make_app, contract_client_for,
+                                                               dask_scheduler):
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    client = contract_client_for(make_app(UVDOSE_CACHE="off"))
+    fields = [{"id": f"block-{i}", "lat": 44.0 + i / 10, "lon": 4.9} for i in range(3)]
+    season = {"first_day": "2026-04-01", "last_day": "2026-04-10", "spectra": ["erythema"]}
+    expected = client.post("/v1/doses/fields", json={"records": fields, **season}).get_json()["results"]
+    source = tmp_path / "fields.parquet"
+    pq.write_table(pa.Table.from_pylist(fields), source)
+    options = [item for key, value in season.items()
+               for item in ("--option", f"{key}={value if isinstance(value, str) else ','.join(value)}")]
+    target = tmp_path / "fields.parquet.out"
+    assert main(["batch", str(source), str(target), "--operation", "fields", "--output-format", "parquet",
+                 "--chunk-size", "10", "--scheduler", dask_scheduler, "--no-progress", *options]) == 0
+    table = pq.read_table(target).to_pydict()
+    assert list(zip(table["id"], table["day"])) == [(f["id"], d["day"]) for f in expected for d in f["days"]]
+    assert table["dose_j_m2.erythema"] == pytest.approx([d["dose_j_m2"]["erythema"] for f in expected for d in f["days"]],
+                                                        rel=1e-12)
+
+    routes = {"routes": [{"id": "van-1", "points": [{"time": "2026-06-21T08:00:00Z", "lat": 45.75, "lon": 4.85},
+                                                    {"time": "2026-06-21T09:00:00Z", "lat": 45.80, "lon": 4.90}]},
+                         {"id": "van-2", "points": [{"time": "2026-06-21T10:00:00Z", "lat": 45.75, "lon": 4.85},
+                                                    {"time": "2026-06-21T11:30:00Z", "lat": 45.70, "lon": 4.80}]}]}
+    (tmp_path / "routes.json").write_text(json.dumps(routes))
+    assert main(["batch", str(tmp_path / "routes.json"), str(tmp_path / "routes.ndjson"), "--operation", "routes",
+                 "--chunk-size", "2", "--no-progress"]) == 0
+    rows = [json.loads(line) for line in (tmp_path / "routes.ndjson").read_text().splitlines()]
+    synchronous = client.post("/v1/doses/routes", json=routes).get_json()["results"]
+    assert [r["id"] for r in rows] == ["van-1", "van-2"]
+    assert [r["dose_j_m2"]["erythema"] for r in rows] == pytest.approx(
+        [r["dose_j_m2"]["erythema"] for r in synchronous], rel=1e-12)
 
 
 def test_progress_bar_goes_to_stderr_for_multi_chunk_files(tmp_path):

@@ -224,9 +224,15 @@ def test_the_catalogue_is_revalidated_with_its_tag(gunicorn_server):
     assert first.etag and first.limits.max_records == 10_000
 
 
-def test_the_jobs_api_is_a_named_seam():
-    with Client("http://127.0.0.1:9") as uv, pytest.raises(JobsNotAvailable, match="/v1/jobs"):
-        uv.jobs.submit("/v1/irradiance", {})
+def test_jobs_on_a_service_without_them_say_so():
+    # An older service answers the jobs paths with a plain 404 (the jobs themselves are
+    # tested against gunicorn and a Dask cluster in tests/service/test_jobs.py).
+    def no_such_path(request):
+        return httpx.Response(404, json={"type": "about:blank", "title": "Not Found", "status": 404})
+
+    http = httpx.Client(transport=httpx.MockTransport(no_such_path), base_url="http://uvdose.invalid")
+    with Client(http=http) as uv, pytest.raises(JobsNotAvailable, match="/v1/jobs"):
+        uv.jobs.submit("/v1/irradiance", {"records": []})
 
 
 # --- the retry policy in isolation -----------------------------------------------------------
