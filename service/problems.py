@@ -108,7 +108,7 @@ PROBLEM_TYPES: tuple[ProblemType, ...] = (
                 "request may do (`quantity` `sample_spectra`), or one record more than one chunk "
                 "computes at once (`record_sample_spectra`, with its `index` and `id`); `asked`, "
                 "`limit` and `setting` say how much. Counted from the request: nothing was computed.",
-                "Submit the same body as a job (`jobs`: the jobs API), split the request, or ask for "
+                "Submit the same body as a job (at `jobs`, `/v1/jobs/<operation>`), split the request, or ask for "
                 "less (fewer spectra, a longer `step_s`, shorter windows or seasons)."),
     ProblemType("answer-too-large", 413, "The answer would be larger than one request may give",
                 "The answer's estimated size (`asked`, bytes) is over the limit for a whole JSON "

@@ -191,7 +191,7 @@ def _bounded(kind: str, per_record: np.ndarray, ids, rows: int, spectra: int, id
     work_bounds.check_work(per_record, ids, kind, limits)
     media_type = negotiate(request)
     estimate = work_bounds.answer_bytes(kind, media_type, rows, spectra, id_bytes)
-    work_bounds.check_answer(estimate, media_type in STREAMED_MEDIA_TYPES, limits)
+    work_bounds.check_answer(kind, estimate, media_type in STREAMED_MEDIA_TYPES, limits)
     return media_type, work_bounds.record_chunks(per_record, limits.chunk_sample_spectra, rows_per_record)
 
 

@@ -16,8 +16,8 @@ them costs milliseconds, not minutes:
   worker holds one chunk's samples at a time whatever the request; a single record that
   implies more cannot be split and gets a 413 ``too-much-work`` naming it.
 
-Every 413 states what was asked, the limit, the setting, and points to the jobs API
-(:data:`JOBS_PATH`), which takes work of any size.
+Every 413 states what was asked, the limit, the setting, and where to submit the same body
+as a job (:func:`jobs_url`: the jobs API takes work of any size).
 """
 from __future__ import annotations
 
@@ -29,7 +29,13 @@ import numpy as np
 from uvdose.service.problems import Problem
 
 JOBS_PATH = "/v1/jobs"
-"""Where work too large for one synchronous request goes."""
+"""The jobs API, where work too large for one synchronous request goes: ``POST
+/v1/jobs/<operation>`` takes the operation's synchronous body (``windows``, ``fields``, ...)."""
+
+
+def jobs_url(kind: str) -> str:
+    """Where the same body is submitted as a job."""
+    return f"{JOBS_PATH}/{kind}"
 
 
 @dataclass(frozen=True)
@@ -82,11 +88,11 @@ class Limits:
                    config["UVDOSE_MAX_ANSWER_BYTES"], config["UVDOSE_MAX_STREAMED_ANSWER_BYTES"])
 
 
-def _too_much(detail: str, quantity: str, asked: int, limit: int, setting: str, **more) -> Problem:
+def _too_much(kind: str, detail: str, quantity: str, asked: int, limit: int, setting: str, **more) -> Problem:
     return Problem(413, "too-much-work", "The request implies more work than one request may do",
-                   f"{detail} Submit it as a job (POST {JOBS_PATH}), or split it.",
+                   f"{detail} Submit it as a job (POST {jobs_url(kind)}, the same body), or split it.",
                    extensions={"quantity": quantity, "asked": int(asked), "limit": int(limit),
-                               "setting": setting, "jobs": JOBS_PATH, **more})
+                               "setting": setting, "jobs": jobs_url(kind), **more})
 
 
 def check_work(per_record: np.ndarray, ids: np.ndarray, what: str, limits: Limits) -> None:
@@ -95,13 +101,13 @@ def check_work(per_record: np.ndarray, ids: np.ndarray, what: str, limits: Limit
     per_record = np.asarray(per_record, dtype=np.int64)
     total = int(per_record.sum())
     if total > limits.max_sample_spectra:
-        raise _too_much(f"The {per_record.size} {what} sent imply {total} engine samples × spectra; one "
+        raise _too_much(what, f"The {per_record.size} {what} sent imply {total} engine samples × spectra; one "
                         f"request may do at most {limits.max_sample_spectra} (UVDOSE_MAX_SAMPLE_SPECTRA).",
                         "sample_spectra", total, limits.max_sample_spectra, "UVDOSE_MAX_SAMPLE_SPECTRA")
     if per_record.size and per_record.max() > limits.chunk_sample_spectra:
         index = int(np.argmax(per_record))
         record_id = ids[index] if isinstance(ids[index], str) else None
-        raise _too_much(f"Record {index} implies {int(per_record[index])} engine samples × spectra; one record "
+        raise _too_much(what, f"Record {index} implies {int(per_record[index])} engine samples × spectra; one record "
                         f"may imply at most {limits.chunk_sample_spectra} (UVDOSE_CHUNK_SAMPLE_SPECTRA), the "
                         "most one chunk of a request computes at once. Shorten it or take a longer step.",
                         "record_sample_spectra", per_record[index], limits.chunk_sample_spectra,
@@ -114,7 +120,7 @@ def answer_bytes(kind: str, media_type: str, rows: int, spectra: int, id_bytes: 
     return ENVELOPE_BYTES + int(rows) * ROW_BYTES[kind][media_type].of(spectra) + int(id_bytes)
 
 
-def check_answer(estimate: int, streamed: bool, limits: Limits) -> None:
+def check_answer(kind: str, estimate: int, streamed: bool, limits: Limits) -> None:
     """Hold an answer's estimated bytes to the limit of its kind (whole or streamed)."""
     limit = limits.max_streamed_answer_bytes if streamed else limits.max_answer_bytes
     if estimate <= limit:
@@ -126,9 +132,9 @@ def check_answer(estimate: int, streamed: bool, limits: Limits) -> None:
     raise Problem(413, "answer-too-large", "The answer would be larger than one request may give",
                   f"The answer would be about {estimate} bytes; a {'streamed' if streamed else 'whole JSON'} "
                   f"answer may be at most {limit} bytes ({setting}).{hint} Submit it as a job "
-                  f"(POST {JOBS_PATH}), or split it.",
+                  f"(POST {jobs_url(kind)}, the same body), or split it.",
                   extensions={"quantity": "answer_bytes", "asked": int(estimate), "limit": int(limit),
-                              "setting": setting, "jobs": JOBS_PATH})
+                              "setting": setting, "jobs": jobs_url(kind)})
 
 
 CHUNK_ROWS = 1024

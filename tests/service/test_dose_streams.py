@@ -232,3 +232,12 @@ def test_a_streamed_answer_past_its_deadline_ends_with_the_deadline_problem(make
     assert response.status_code == 200
     assert last["error"]["type"] == "urn:uvdose:problem:deadline-exceeded" and last["error"]["status"] == 503
     assert "incomplete" in last["error"]["detail"]
+
+
+def test_the_dose_csv_neutralises_formula_ids(chunked):
+    """The streamed CSV writes every cell through the one CSV cell writer, so an id a
+    spreadsheet would run as a formula comes back with the leading quote (README, CSV rule)."""
+    records = [dict(WINDOWS["records"][0], id="=cmd|' /C calc'!A0"), dict(WINDOWS["records"][1], id="+1")]
+    table = list(csv.reader(io.StringIO(_post(chunked, "/v1/doses/windows", {"records": records}, "text/csv")
+                                        .get_data(as_text=True))))
+    assert [row[0] for row in table[1:]] == ["'=cmd|' /C calc'!A0", "'+1"]

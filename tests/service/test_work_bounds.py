@@ -51,8 +51,10 @@ def _assert_413(response, slug, quantity, asked, limit, setting):
     assert problem["type"] == f"urn:uvdose:problem:{slug}"
     assert (problem["quantity"], problem["asked"], problem["limit"], problem["setting"]) == (
         quantity, asked, limit, setting)
-    assert problem["jobs"] == work_bounds.JOBS_PATH == "/v1/jobs"
-    assert f"{asked}" in problem["detail"] and f"{limit}" in problem["detail"] and "/v1/jobs" in problem["detail"]
+    operation = response.request.path.rsplit("/", 1)[1]
+    assert problem["jobs"] == f"/v1/jobs/{operation}"  # where the same body goes as a job
+    assert f"{asked}" in problem["detail"] and f"{limit}" in problem["detail"]
+    assert f"POST /v1/jobs/{operation}" in problem["detail"]
     return problem
 
 
