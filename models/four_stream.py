@@ -74,6 +74,12 @@ RAYLEIGH_PHASE_MOMENT_2 = 0.1
 """Second Legendre moment of the Rayleigh phase function (3/4)(1 + cos^2) (Chandrasekhar
 1950, sec. 18); depolarisation neglected, as in ``models.optics`` (Rayleigh g = 0)."""
 
+SHARE_ROUNDING = 1e-12
+"""Absolute rounding allowed in ``|g| <= 1 - rayleigh_scattering_fraction`` (the shares
+come from ratios of optical depths, exact to about 1e-16)."""
+MAX_AEROSOL_ASYMMETRY = 1.0 - 1e-9
+"""Cap on the magnitude of the recovered Henyey-Greenstein asymmetry of the aerosol."""
+
 _NODE = 0.5 / np.sqrt(3.0)
 STREAM_COSINES = np.array([0.5 - _NODE, 0.5 + _NODE])
 """Double-Gauss nodes: 2-point Gauss-Legendre on [0, 1] in each hemisphere."""
@@ -85,10 +91,6 @@ def _legendre(x):
     """Legendre polynomials P_0..P_3 at x, shape x.shape + (4,)."""
     x = np.asarray(x, dtype=np.float64)
     return np.stack([np.ones_like(x), x, 1.5 * x * x - 0.5, 2.5 * x ** 3 - 1.5 * x], axis=-1)
-
-
-_ROUNDING_G = 1e-12
-"""Largest asymmetry factor taken as rounding in a layer whose aerosol share is 0."""
 
 
 def mixture_phase_moments(g, rayleigh_scattering_fraction):
@@ -104,13 +106,17 @@ def mixture_phase_moments(g, rayleigh_scattering_fraction):
     if np.any((rayleigh < 0) | (rayleigh > 1)):
         raise ValueError("rayleigh_scattering_fraction must lie in [0, 1]")
     aerosol = 1.0 - rayleigh
-    has_aerosol = aerosol > 0
-    g_aerosol = np.where(has_aerosol, g / np.where(has_aerosol, aerosol, 1.0), 0.0)
-    # Where the aerosol's share rounds to 0, g is the rounding left of its product with
-    # the aerosol's scattering (1.6e-19 seen at AOD 1.2e-7 and 300 hPa): that is no
-    # inconsistency, and the aerosol term is dropped as it would be at share 0.
-    if np.any(np.abs(g_aerosol) >= 1.0) or np.any(~has_aerosol & (np.abs(g) > _ROUNDING_G)):
+    if np.any(np.abs(g) > aerosol + SHARE_ROUNDING):
         raise ValueError("g / (1 - rayleigh_scattering_fraction) must lie in (-1, 1)")
+    # Where the aerosol's share of the scattering is of the order of the rounding of the
+    # share itself (a weakly scattering aerosol, the upper layers, where the aerosol
+    # profile is ~1e-11 of its surface value, or a share that rounds to 0 with g the
+    # rounding of its product, 1.6e-19 seen at AOD 1.2e-7 and 300 hPa), the recovered HG
+    # asymmetry is noise and may come out at or beyond 1; it weighs at most that share in
+    # every moment.
+    has_aerosol = aerosol > 0
+    g_aerosol = np.clip(np.where(has_aerosol, g / np.where(has_aerosol, aerosol, 1.0), 0.0),
+                        -MAX_AEROSOL_ASYMMETRY, MAX_AEROSOL_ASYMMETRY)
     moments = aerosol[..., None] * g_aerosol[..., None] ** np.arange(1, 5)
     moments[..., 1] += RAYLEIGH_PHASE_MOMENT_2 * rayleigh
     return moments

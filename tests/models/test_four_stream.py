@@ -137,6 +137,24 @@ def test_mixture_moments():
     np.testing.assert_allclose(mixture_phase_moments(np.array([1.6e-19]), np.array([1.0]))[0], [0.0, 0.1, 0.0, 0.0])
 
 
+@pytest.mark.parametrize("asymmetry_factor", [0.0, 0.5, 0.95])
+def test_a_weakly_scattering_aerosol_tends_to_the_purely_absorbing_one(asymmetry_factor):
+    # As the aerosol's single scattering albedo goes to 0 its scattering, and with it its
+    # phase function, drops out of the transfer: the surface fluxes must tend smoothly to
+    # those of a purely absorbing aerosol (exact limit of the transfer equation), for any
+    # asymmetry factor, instead of failing on rounding in the recovered aerosol share.
+    from uvdose.models.clear_sky import spectral_irradiance_direct_solve
+
+    ssa = np.array([0.0, 1e-12, 1e-9, 1e-6, 1e-3])
+    sky = spectral_irradiance_direct_solve(np.full(5, 40.0), 1.0, 300.0, 1000.0, 0.05, 2.0, 1.3,
+                                           ssa, asymmetry_factor)
+    total = sky.global_horizontal_w_m2_nm.sum(axis=1)
+    assert np.all(np.isfinite(total)) and np.all(total > 0)
+    np.testing.assert_allclose(total[1:4], total[0], rtol=1e-5)
+    # A thousandth of scattering aerosol adds at most a few parts per thousand of light.
+    assert 0.0 <= total[4] / total[0] - 1.0 < 5e-3
+
+
 def random_layers(rng, n=4, layers=12, wavelengths=7, ssa=None):
     tau = rng.uniform(0.0, 1.5, (n, layers, wavelengths))
     ssa_values = rng.uniform(0.0, 1.0, tau.shape) if ssa is None else np.full(tau.shape, ssa)

@@ -442,6 +442,14 @@ def test_a_measurement_with_the_sun_too_low_leaves_the_sky_clear(exact):
 
 # --- the bound on full-solve records -----------------------------------------------------
 
+@pytest.mark.parametrize("ssa", [0, 1e-6, 0.001])
+def test_a_nearly_non_scattering_aerosol_is_answered(exact, ssa):
+    # The schema allows any single scattering albedo in [0, 1] with asymmetry up to 0.95;
+    # a purely absorbing aerosol (soot-like) is the low end of that range.
+    result = one(exact, aod_550=1.0, single_scattering_albedo=ssa, asymmetry_factor=0.95)
+    assert result["uv_index"] > 0
+
+
 def test_records_beyond_the_full_solve_bound_are_a_413_problem_not_a_timeout(make_app, contract_client_for):
     # A client aerosol type lies outside the precomputed table, so each such daytime record
     # takes the full solve (~100 records/s per core); the bound keeps a request within time.
