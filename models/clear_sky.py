@@ -38,7 +38,7 @@ from functools import lru_cache
 
 import numpy as np
 
-from uvdose.models import action_spectra, atmosphere, irradiance_table, optics
+from uvdose.models import action_spectra, atmosphere, irradiance_table, optics, weighted_table
 from uvdose.models.four_stream import surface_irradiance
 from uvdose.models.solar_geometry import CIVIL_TWILIGHT_ZENITH_DEG
 from uvdose.models.spectral_grid import WAVELENGTH_NM, extraterrestrial_spectrum_w_m2_nm
@@ -131,9 +131,9 @@ class FullSolveBudget:
     """How many records one caller (e.g. one HTTP request) lets the full solve take.
 
     The full solve runs at about 100 records/s per core (``tests/benchmarks/bench_engine.py``)
-    against tens of thousands for the precomputed table, so a large batch of records outside
-    the table (a client aerosol type, pressure below 500 hPa, AOD above 2, ozone below
-    100 DU) could outlast any request timeout.
+    against tens of thousands for the precomputed tables, so a large batch of records outside
+    them (an aerosol beyond ``models.aerosol_table``'s range: very thick or strongly
+    absorbing) could outlast any request timeout.
     :meth:`spend` raises :class:`FullSolveLimitExceeded` before such work starts.
     """
 
@@ -190,13 +190,50 @@ def weighted_irradiance(true_zenith_deg, ozone_du, pressure_hpa, surface_albedo,
     and the erythemal global irradiance without any filter (N,), computed the same way
     whatever the filter (the UV Index does not depend on it). Other arguments and
     ``method`` as in :func:`spectral_irradiance`.
+
+    Records of the default aerosol type inside the precomputed table (grey albedo) take
+    the weighted integrals of ``models.weighted_table`` directly: all of them without a
+    filter, the open-sky erythema alone behind one (so that the UV Index does not depend on
+    the filter); the rest are weighted from their spectra.
     """
-    sky = spectral_irradiance(true_zenith_deg, 1.0, ozone_du, pressure_hpa, surface_albedo,
-                              aod_550, angstrom_exponent, single_scattering_albedo,
-                              asymmetry_factor, method=method, full_solve_budget=full_solve_budget)
-    weights = grid_weights(tuple(spectra))
-    if transmittance is not None:
-        weights = weights * np.asarray(transmittance, dtype=np.float64)[:, None]
-    open_sky = sky.global_horizontal_w_m2_nm @ grid_weights(("erythema",))[:, 0]
-    return (sky.direct_horizontal_w_m2_nm @ weights, sky.diffuse_horizontal_w_m2_nm @ weights,
-            open_sky)
+    zenith, ozone, pressure, aod, alpha, ssa, g = _as_record_arrays(
+        true_zenith_deg, ozone_du, pressure_hpa, aod_550, angstrom_exponent,
+        single_scattering_albedo, asymmetry_factor)
+    albedo = np.asarray(surface_albedo, dtype=float)
+    names = tuple(spectra)
+    integrable = np.zeros(zenith.size, dtype=bool)
+    if method in ("auto", "table") and albedo.ndim <= 1:
+        albedo = np.broadcast_to(albedo, zenith.shape)
+        integrable = (zenith < CIVIL_TWILIGHT_ZENITH_DEG) & irradiance_table.in_table_range(
+            zenith, ozone, pressure, aod, alpha, ssa, g)
+    integrated = integrable if transmittance is None else np.zeros(zenith.size, dtype=bool)
+    with_erythema = names if "erythema" in names else (*names, "erythema")
+    direct = np.zeros((zenith.size, len(with_erythema)))
+    diffuse = np.zeros((zenith.size, len(with_erythema)))
+    open_sky = np.zeros(zenith.size)
+    rows = np.flatnonzero(integrated)
+    if rows.size:
+        direct[rows], diffuse[rows] = weighted_table.weighted_irradiance(
+            zenith[rows], ozone[rows], pressure[rows], albedo[rows], aod[rows], with_erythema)
+        erythema = with_erythema.index("erythema")
+        open_sky[rows] = direct[rows, erythema] + diffuse[rows, erythema]
+    rest = np.flatnonzero(~integrated)
+    if rest.size:
+        part = np.asarray(albedo)
+        part = part[rest] if part.ndim >= 1 and part.shape[0] == zenith.size else part
+        sky = spectral_irradiance(zenith[rest], 1.0, ozone[rest], pressure[rest], part, aod[rest],
+                                  alpha[rest], ssa[rest], g[rest], method=method,
+                                  full_solve_budget=full_solve_budget)
+        weights = grid_weights(with_erythema)
+        if transmittance is not None:
+            weights = weights * np.asarray(transmittance, dtype=np.float64)[:, None]
+        direct[rest] = sky.direct_horizontal_w_m2_nm @ weights
+        diffuse[rest] = sky.diffuse_horizontal_w_m2_nm @ weights
+        open_sky[rest] = sky.global_horizontal_w_m2_nm @ grid_weights(("erythema",))[:, 0]
+    behind_filter = np.flatnonzero(integrable & ~integrated)
+    if behind_filter.size:
+        part = [column[behind_filter] for column in (zenith, ozone, pressure, albedo, aod)]
+        direct_erythema, diffuse_erythema = weighted_table.weighted_irradiance(*part, ("erythema",))
+        open_sky[behind_filter] = (direct_erythema + diffuse_erythema)[:, 0]
+    count = len(names)
+    return direct[:, :count], diffuse[:, :count], open_sky

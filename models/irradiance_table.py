@@ -31,15 +31,18 @@ by four-node Lagrange interpolation in ln m for the global flux; linearly in ozo
 pressure and AOD. The global flux is interpolated
 rather than the diffuse one because aerosol forward scattering moves light from the
 beam to the diffuse field and leaves their sum much closer to log-linear. The gather and
-weighted sum run as one sparse-matrix product per array (``_corner_weights``).
+weighted sum run as one sparse-matrix product per array (``corner_weights``).
 Node placement was chosen so that the table stays within 1 % of the full solve for
 the UV Index, every action spectrum of ``models.action_spectra`` and the UVB/UVA bands
 over the whole range (``tests/models/test_irradiance_table.py``).
 
-Range (outside it, or with a non-default aerosol type, ``models.clear_sky`` uses the
-full solve): true zenith 0–96° (the sun up to 6° below the horizon: the diffuse light of
-civil twilight, no direct beam beyond 90°), ozone 100–700 DU, pressure 500–1060 hPa,
-AOD(550) 0–2.
+Range: true zenith 0–96° (the sun up to 6° below the horizon: the diffuse light of
+civil twilight, no direct beam beyond 90°), and the record schema's ozone 50–700 DU,
+pressure 300–1100 hPa and AOD(550) 0–5. A record with its own aerosol type is answered
+from this table's aerosol-free sky and ``models.aerosol_table``
+(:func:`relative_surface_flux_any_aerosol`) when its aerosol lies in that table's range;
+only the rest (very thick or strongly absorbing aerosol) goes to the full solve in
+``models.clear_sky``.
 
 The table file ``models/data/irradiance_table.npz`` is written by
 ``models/data/build_irradiance_table.py`` and carries a fingerprint (``MODEL_VERSION``
@@ -56,8 +59,9 @@ from pathlib import Path
 import numpy as np
 import scipy.sparse
 
-from uvdose.models import MODEL_VERSION, atmosphere, optics
+from uvdose.models import MODEL_VERSION, aerosol_table, atmosphere, optics
 from uvdose.models.record_errors import RecordError, RecordErrors
+from uvdose.models.atmosphere import air_mass_coordinate
 from uvdose.models.solar_geometry import CIVIL_TWILIGHT_ZENITH_DEG
 from uvdose.models.spectral_grid import WAVELENGTH_NM, extraterrestrial_spectrum_w_m2_nm
 from uvdose.models.four_stream import transfer_components
@@ -77,14 +81,15 @@ ZENITH_NODES_DEG = np.array([
 with extra nodes at 22-56 degrees, where below 290 nm the global flux turns from beam to
 skylight; then every 0.25-0.5 degrees through civil twilight (sun below the horizon,
 upper atmosphere lit) to ``models.solar_geometry.CIVIL_TWILIGHT_ZENITH_DEG``."""
-OZONE_NODES_DU = np.array([100.0, 130.0, 165.0, 205.0, 250.0, 300.0, 360.0, 430.0, 510.0,
-                           600.0, 700.0])
-"""Total ozone nodes, DU (denser at low ozone, where the diffuse flux bends most)."""
-PRESSURE_NODES_HPA = np.array([500.0, 610.0, 720.0, 830.0, 945.0, 1060.0])
-"""Surface pressure nodes, hPa."""
-AOD_NODES = np.array([0.0, 0.05, 0.12, 0.25, 0.45, 0.75, 1.25, 2.0])
-"""AOD(550) nodes (denser for thin aerosol: delta-scaling of the Rayleigh-aerosol
-mixture makes the fluxes bend most there)."""
+OZONE_NODES_DU = np.array([50.0, 75.0, 100.0, 130.0, 165.0, 205.0, 250.0, 300.0, 360.0, 430.0,
+                           510.0, 600.0, 700.0])
+"""Total ozone nodes, DU, over the record schema's 50-700 DU (denser at low ozone, where
+the diffuse flux bends most)."""
+PRESSURE_NODES_HPA = np.array([300.0, 400.0, 500.0, 610.0, 720.0, 830.0, 945.0, 1060.0, 1100.0])
+"""Surface pressure nodes, hPa, over the record schema's 300-1100 hPa."""
+AOD_NODES = np.array([0.0, 0.05, 0.12, 0.25, 0.45, 0.75, 1.25, 2.0, 3.0, 5.0])
+"""AOD(550) nodes, to the record schema's 5 (denser for thin aerosol: delta-scaling of
+the Rayleigh-aerosol mixture makes the fluxes bend most there)."""
 
 DEFAULT_AEROSOL_TYPE = (optics.DEFAULT_ANGSTROM_EXPONENT,
                         optics.DEFAULT_SINGLE_SCATTERING_ALBEDO,
@@ -95,35 +100,6 @@ _LOG_FLOOR = 1e-300
 
 CHUNK_RECORDS = 2048
 """Records interpolated per block (working set about 1 MB per (records, W) array)."""
-
-
-def air_mass_coordinate(true_zenith_deg, beam_air_mass=None) -> np.ndarray:
-    """The zenith axis variable, (N,): the air-column-weighted air mass of the direct beam.
-
-    ``sum_l air_fraction_l * m_l(zenith)`` with ``m_l`` from
-    ``models.atmosphere.beam_air_mass`` (pass it as ``beam_air_mass`` (N, L) if already
-    computed); monotonic in the zenith angle, about sec(zenith) for a high sun. Beyond 90
-    degrees (no direct beam) it continues as ``m(90) exp(s (zenith - 90))``, with ``s``
-    the slope of ln m at 90 degrees, so that ln m stays smooth through the horizon.
-    """
-    layers = atmosphere.standard_layers()
-    zenith = np.atleast_1d(np.asarray(true_zenith_deg, dtype=float))
-    if beam_air_mass is None:
-        beam_air_mass = atmosphere.beam_air_mass(zenith, layers)
-    air_mass = beam_air_mass @ layers.air_column_fraction
-    below_horizon = zenith > 90.0
-    if np.any(below_horizon):
-        air_mass = np.where(below_horizon,
-                            air_mass * np.exp(_horizon_log_slope() * (zenith - 90.0)), air_mass)
-    return air_mass
-
-
-@lru_cache(maxsize=1)
-def _horizon_log_slope() -> float:
-    """d ln m / d zenith (per degree) at 90 degrees, one-sided."""
-    layers = atmosphere.standard_layers()
-    ends = atmosphere.beam_air_mass(np.array([90.0 - 1e-3, 90.0]), layers) @ layers.air_column_fraction
-    return float(np.log(ends[1] / ends[0]) / 1e-3)
 
 
 def fingerprint() -> str:
@@ -257,7 +233,21 @@ def in_table_range(true_zenith_deg, ozone_du, pressure_hpa, aod_550, angstrom_ex
     return inside & default_type
 
 
-def _bracket(coordinate_nodes, values):
+def any_aerosol_in_range(true_zenith_deg, ozone_du, pressure_hpa, aod_550, angstrom_exponent,
+                         single_scattering_albedo, asymmetry_factor) -> np.ndarray:
+    """Boolean (N,): records :func:`relative_surface_flux_any_aerosol` covers (this table's
+    zenith, ozone and pressure axes, ``models.aerosol_table``'s aerosol axes): every record
+    the record schema admits."""
+    zenith, ozone, pressure = (np.atleast_1d(np.asarray(v, dtype=float))
+                               for v in (true_zenith_deg, ozone_du, pressure_hpa))
+    inside = ((zenith >= ZENITH_NODES_DEG[0]) & (zenith <= ZENITH_NODES_DEG[-1])
+              & (ozone >= OZONE_NODES_DU[0]) & (ozone <= OZONE_NODES_DU[-1])
+              & (pressure >= PRESSURE_NODES_HPA[0]) & (pressure <= PRESSURE_NODES_HPA[-1]))
+    return inside & aerosol_table.in_range(ozone, pressure, aod_550, angstrom_exponent,
+                                           single_scattering_albedo, asymmetry_factor)
+
+
+def bracket(coordinate_nodes, values):
     """Lower node index and fractional position of each value, (N,) each."""
     index = np.clip(np.searchsorted(coordinate_nodes, values, side="right") - 1, 0,
                     coordinate_nodes.size - 2)
@@ -266,16 +256,16 @@ def _bracket(coordinate_nodes, values):
     return index, fraction
 
 
-def _linear_axis(coordinate_nodes, values):
+def linear_axis(coordinate_nodes, values):
     """Two-node linear weights: (node indices (N, 2), weights (N, 2), node count)."""
-    index, fraction = _bracket(coordinate_nodes, values)
+    index, fraction = bracket(coordinate_nodes, values)
     return (np.stack([index, index + 1], 1), np.stack([1.0 - fraction, fraction], 1),
             coordinate_nodes.size)
 
 
-def _cubic_axis(coordinate_nodes, values):
+def cubic_axis(coordinate_nodes, values):
     """Four-node Lagrange weights on the nodes around each value (one-sided at the ends)."""
-    index, _ = _bracket(coordinate_nodes, values)
+    index, _ = bracket(coordinate_nodes, values)
     first = np.clip(index - 1, 0, coordinate_nodes.size - 4)
     nodes = first[:, None] + np.arange(4)[None, :]
     x = coordinate_nodes[nodes]  # (N, 4)
@@ -287,7 +277,7 @@ def _cubic_axis(coordinate_nodes, values):
     return nodes, weights, coordinate_nodes.size
 
 
-def _corner_weights(axes):
+def corner_weights(axes):
     """Sparse (N, cells) matrix of interpolation weights over a table's flattened cells.
 
     ``axes`` holds, per table axis in the table's order, (node indices (N, k), weights
@@ -309,33 +299,24 @@ def _corner_weights(axes):
         shape=(n, int(np.prod(shape))))
 
 
-def relative_surface_flux(true_zenith_deg, ozone_du, pressure_hpa, surface_albedo, aod_550,
-                          table: IrradianceTable | None = None):
-    """Direct and diffuse horizontal flux per unit extraterrestrial irradiance, (N, W) each.
-
-    Every record must lie in the table's range (see :func:`in_table_range`);
-    ``surface_albedo`` is (N,), scalar or (N, W).
-    """
-    table = table or load_table()
-    zenith = np.atleast_1d(np.asarray(true_zenith_deg, dtype=float))
-    n = zenith.size
-    ozone, pressure, aod = (np.broadcast_to(np.asarray(v, dtype=float), (n,))
-                            for v in (ozone_du, pressure_hpa, aod_550))
+def _black_surface_parts(zenith, ozone, pressure, aod, table: IrradianceTable):
+    """Interpolated direct and diffuse flux over a black surface and spherical albedo,
+    (N, W) float32 each, plus the beam's per-layer air mass (N, L)."""
     # Zenith: the log of the direct beam is close to linear in the air mass m (linear
     # interpolation); the log of the global flux is smooth but curved in ln m (four-node
     # Lagrange interpolation, which keeps the strongly absorbed wavelengths accurate).
     layer_air_mass = atmosphere.beam_air_mass(zenith)
     air_mass = air_mass_coordinate(zenith, layer_air_mass)
-    zenith_direct = _linear_axis(table.air_mass_nodes, air_mass)
-    zenith_global = _cubic_axis(np.log(table.air_mass_nodes), np.log(air_mass))
-    ozone_axis = _linear_axis(OZONE_NODES_DU, ozone)
-    pressure_axis = _linear_axis(PRESSURE_NODES_HPA, pressure)
-    aod_axis = _linear_axis(AOD_NODES, aod)
+    zenith_direct = linear_axis(table.air_mass_nodes, air_mass)
+    zenith_global = cubic_axis(np.log(table.air_mass_nodes), np.log(air_mass))
+    ozone_axis = linear_axis(OZONE_NODES_DU, ozone)
+    pressure_axis = linear_axis(PRESSURE_NODES_HPA, pressure)
+    aod_axis = linear_axis(AOD_NODES, aod)
 
-    log_global = (_corner_weights([ozone_axis, pressure_axis, aod_axis, zenith_global])
+    log_global = (corner_weights([ozone_axis, pressure_axis, aod_axis, zenith_global])
                   @ table.global_cells)
-    log_direct = _corner_weights([pressure_axis, aod_axis, zenith_direct]) @ table.direct_cells
-    spherical = (_corner_weights([ozone_axis, pressure_axis, aod_axis])
+    log_direct = corner_weights([pressure_axis, aod_axis, zenith_direct]) @ table.direct_cells
+    spherical = (corner_weights([ozone_axis, pressure_axis, aod_axis])
                  @ table.spherical_albedo.reshape(-1, table.spherical_albedo.shape[-1]))
 
     # Elementwise work in float32: the table holds float32, and the interpolation error
@@ -351,9 +332,52 @@ def relative_surface_flux(true_zenith_deg, ozone_du, pressure_hpa, surface_albed
     # The interpolated global can dip under the interpolated beam only where the diffuse
     # share is below the interpolation error; it is then taken as no diffuse light.
     diffuse_black = np.maximum(global_black - direct, 0.0, out=global_black)
+    return direct, diffuse_black, spherical, layer_air_mass
+
+
+def _record_arrays(true_zenith_deg, *values):
+    zenith = np.atleast_1d(np.asarray(true_zenith_deg, dtype=float))
+    return (zenith, *(np.broadcast_to(np.asarray(v, dtype=float), zenith.shape) for v in values))
+
+
+def _albedo_rows(surface_albedo):
     albedo = np.asarray(surface_albedo, dtype=np.float32)
-    albedo = albedo[:, None] if albedo.ndim == 1 else albedo
-    return apply_surface_albedo(direct, diffuse_black, spherical, albedo)
+    return albedo[:, None] if albedo.ndim == 1 else albedo
+
+
+def relative_surface_flux(true_zenith_deg, ozone_du, pressure_hpa, surface_albedo, aod_550,
+                          table: IrradianceTable | None = None):
+    """Direct and diffuse horizontal flux per unit extraterrestrial irradiance, (N, W) each,
+    for the default aerosol type.
+
+    Every record must lie in the table's range (see :func:`in_table_range`);
+    ``surface_albedo`` is (N,), scalar or (N, W).
+    """
+    zenith, ozone, pressure, aod = _record_arrays(true_zenith_deg, ozone_du, pressure_hpa, aod_550)
+    direct, diffuse_black, spherical, _ = _black_surface_parts(zenith, ozone, pressure, aod,
+                                                               table or load_table())
+    return apply_surface_albedo(direct, diffuse_black, spherical, _albedo_rows(surface_albedo))
+
+
+def relative_surface_flux_any_aerosol(true_zenith_deg, ozone_du, pressure_hpa, surface_albedo,
+                                      aod_550, angstrom_exponent, single_scattering_albedo,
+                                      asymmetry_factor, table: IrradianceTable | None = None):
+    """As :func:`relative_surface_flux`, for any aerosol in ``models.aerosol_table``'s range:
+    this table's aerosol-free sky, the exact direct beam of the record's aerosol, and the
+    tabulated ratios of its diffuse flux and spherical albedo to the aerosol-free ones."""
+    zenith, ozone, pressure, aod, alpha, ssa, g = _record_arrays(
+        true_zenith_deg, ozone_du, pressure_hpa, aod_550, angstrom_exponent,
+        single_scattering_albedo, asymmetry_factor)
+    _, diffuse_black, spherical, layer_air_mass = _black_surface_parts(
+        zenith, ozone, pressure, np.zeros_like(zenith), table or load_table())
+    direct = aerosol_table.direct_horizontal_flux(
+        zenith, ozone, pressure, aerosol_table.spectral_aerosol_depth(aod, alpha, WAVELENGTH_NM),
+        ssa, g, layer_air_mass).astype(np.float32)
+    log_diffuse, log_spherical = aerosol_table.log_ratios(zenith, ozone, pressure, aod, alpha,
+                                                          ssa, g)
+    diffuse_black *= np.exp(log_diffuse)
+    spherical *= np.exp(log_spherical)
+    return apply_surface_albedo(direct, diffuse_black, spherical, _albedo_rows(surface_albedo))
 
 
 def _out_of_range_error(record, zenith, ozone, pressure, aod, alpha, ssa, g) -> RecordError:
@@ -369,9 +393,9 @@ def _out_of_range_error(record, zenith, ozone, pressure, aod, alpha, ssa, g) -> 
         if not nodes[0] <= value <= nodes[-1]:
             return RecordError(record, name, f"is outside the precomputed clear-sky table "
                                              f"({nodes[0]:g}-{nodes[-1]:g}{unit})", value=value)
-    return RecordError(record, None, f"aerosol type (angstrom_exponent {alpha:g}, "
+    return RecordError(record, None, f"aerosol (aod_550 {aod:g}, angstrom_exponent {alpha:g}, "
                                      f"single_scattering_albedo {ssa:g}, asymmetry_factor {g:g}) "
-                                     f"differs from the table's default {DEFAULT_AEROSOL_TYPE}")
+                                     f"lies outside the precomputed aerosol table")
 
 
 def spectral_irradiance(true_zenith_deg, earth_sun_distance_au, ozone_du, pressure_hpa,
@@ -379,7 +403,8 @@ def spectral_irradiance(true_zenith_deg, earth_sun_distance_au, ozone_du, pressu
                         asymmetry_factor, direct_solve=None):
     """Direct and diffuse horizontal spectral irradiance, W m⁻² nm⁻¹, each (N, W).
 
-    Arguments as ``models.clear_sky.spectral_irradiance``. Records the table covers are
+    Arguments as ``models.clear_sky.spectral_irradiance``. Records the table covers
+    (:func:`in_table_range`, or :func:`any_aerosol_in_range` for other aerosol types) are
     interpolated; records with the sun beyond civil twilight get exact zeros; the rest go
     to ``direct_solve`` (a callable with the same arguments returning an object with
     ``direct_horizontal_w_m2_nm`` and ``diffuse_horizontal_w_m2_nm``). Without
@@ -395,34 +420,39 @@ def spectral_irradiance(true_zenith_deg, earth_sun_distance_au, ozone_du, pressu
     albedo = (np.broadcast_to(albedo, (n,))[:, None] if albedo.ndim <= 1
               else np.broadcast_to(albedo, (n, WAVELENGTH_NM.size)))
     sun_up = zenith < CIVIL_TWILIGHT_ZENITH_DEG
-    covered = sun_up & in_table_range(zenith, ozone, pressure, aod, alpha, ssa, g)
-    uncovered = np.flatnonzero(sun_up & ~covered)
+    default_type = sun_up & in_table_range(zenith, ozone, pressure, aod, alpha, ssa, g)
+    any_type = sun_up & ~default_type & any_aerosol_in_range(zenith, ozone, pressure, aod, alpha,
+                                                             ssa, g)
+    uncovered = np.flatnonzero(sun_up & ~default_type & ~any_type)
     if uncovered.size and direct_solve is None:
         raise RecordErrors(_out_of_range_error(i, zenith[i], ozone[i], pressure[i], aod[i],
                                                alpha[i], ssa[i], g[i]) for i in uncovered.tolist())
 
     top_of_atmosphere = extraterrestrial_spectrum_w_m2_nm().astype(np.float32)[None, :]
     inverse_distance_squared = 1.0 / distance ** 2
-    rows = np.flatnonzero(covered)
-    every_row = rows.size == n
+    every_row = bool(default_type.all() or any_type.all())
     make = np.empty if every_row else np.zeros  # every row written, or zeros for the rest
     direct = make((n, WAVELENGTH_NM.size))
     diffuse = make((n, WAVELENGTH_NM.size))
-    # Blocks of CHUNK_RECORDS keep the (records, W) temporaries in cache and bound memory.
-    for start in range(0, rows.size, CHUNK_RECORDS):
-        stop = start + CHUNK_RECORDS
-        block = slice(start, stop) if every_row else rows[start:stop]
-        d, f = relative_surface_flux(zenith[block], ozone[block], pressure[block], albedo[block],
-                                     aod[block])
-        d *= top_of_atmosphere
-        f *= top_of_atmosphere
-        factor = inverse_distance_squared[block, None]
-        if every_row:
-            np.multiply(d, factor, out=direct[block])
-            np.multiply(f, factor, out=diffuse[block])
-        else:
-            direct[block] = d * factor
-            diffuse[block] = f * factor
+    for chosen, flux, inputs in (
+            (default_type, relative_surface_flux, (zenith, ozone, pressure, albedo, aod)),
+            (any_type, relative_surface_flux_any_aerosol,
+             (zenith, ozone, pressure, albedo, aod, alpha, ssa, g))):
+        rows = np.flatnonzero(chosen)
+        whole = rows.size == n
+        # Blocks of CHUNK_RECORDS keep the (records, W) temporaries in cache and bound memory.
+        for start in range(0, rows.size, CHUNK_RECORDS):
+            block = slice(start, start + CHUNK_RECORDS) if whole else rows[start:start + CHUNK_RECORDS]
+            d, f = flux(*(column[block] for column in inputs))
+            d *= top_of_atmosphere
+            f *= top_of_atmosphere
+            factor = inverse_distance_squared[block, None]
+            if whole:
+                np.multiply(d, factor, out=direct[block])
+                np.multiply(f, factor, out=diffuse[block])
+            else:
+                direct[block] = d * factor
+                diffuse[block] = f * factor
     if uncovered.size:
         solved = direct_solve(zenith[uncovered], distance[uncovered], ozone[uncovered],
                               pressure[uncovered], albedo[uncovered], aod[uncovered],

@@ -182,7 +182,8 @@ def layer_optics(ozone_du, pressure_hpa, aod_550, angstrom_exponent,
     return LayerOptics(tau=tau, ssa=ssa, g=g)
 
 
-def rayleigh_scattering_fraction(layer: LayerOptics, pressure_hpa) -> np.ndarray:
+def rayleigh_scattering_fraction(layer: LayerOptics, pressure_hpa,
+                                 wavelength_nm=WAVELENGTH_NM) -> np.ndarray:
     """Share of each layer's scattering that is molecular (Rayleigh), (N, L, W).
 
     The four-stream solver (``models.four_stream``) mixes a Rayleigh and a
@@ -194,6 +195,8 @@ def rayleigh_scattering_fraction(layer: LayerOptics, pressure_hpa) -> np.ndarray
         ``layer_optics(...)`` of N records on the standard layers.
     pressure_hpa : array (N,)
         Surface pressure of those records, hPa.
+    wavelength_nm : array (W,)
+        The wavelengths ``layer`` was computed on.
 
     Returns
     -------
@@ -210,7 +213,7 @@ def rayleigh_scattering_fraction(layer: LayerOptics, pressure_hpa) -> np.ndarray
     layers = standard_layers()
     rayleigh = (pressure_scale(np.atleast_1d(pressure_hpa))[:, None, None]
                 * (layers.air_column_fraction[:, None]
-                   * rayleigh_optical_depth(WAVELENGTH_NM))[None])
+                   * rayleigh_optical_depth(wavelength_nm))[None])
     scattering = layer.tau * layer.ssa
     return np.where(scattering > 0, np.minimum(rayleigh / np.where(scattering > 0, scattering, 1.0),
                                                1.0), 1.0)

@@ -197,23 +197,27 @@ def default_spectra() -> list[str]:
 def engine_check() -> dict[str, Any]:
     """Import the engine and load its precomputed irradiance table when there is one.
 
-    A table file that is not there yet is reported but does not make the engine unready
-    (``models.clear_sky`` then solves every record directly, slower); a table that is
-    there and fails to load does.
+    A table file that is not there yet is reported but does not make the engine unready;
+    a table that is there and fails to load does.
     """
     started = time.perf_counter()
     try:
-        from uvdose.models import engine, irradiance_table  # noqa: F401  (importable is part of ready)
+        from uvdose.models import aerosol_table, engine, irradiance_table  # noqa: F401  (importable is part of ready)
 
-        try:
-            irradiance_table.load_table()  # memoised: loads once per process
-            table = "loaded"
-        except FileNotFoundError:
-            table = "missing (direct solve)"
+        tables = {}
+        for name, module in (("irradiance_table", irradiance_table), ("aerosol_table", aerosol_table)):
+            try:
+                module.load_table()  # memoised: loads once per process
+                tables[name] = "loaded"
+            except FileNotFoundError:
+                tables[name] = "missing"
+        if tables["irradiance_table"] == "loaded":
+            from uvdose.models import weighted_table
+
+            weighted_table.warm()  # the default path's integrals, once per process
     except Exception as error:  # readiness must report, not raise
         return {"ok": False, "error": f"{type(error).__name__}: {error}"}
-    return {"ok": True, "irradiance_table": table,
-            "seconds": round(time.perf_counter() - started, 4)}
+    return {"ok": True, **tables, "seconds": round(time.perf_counter() - started, 4)}
 
 
 def cache_check() -> dict[str, Any]:

@@ -76,8 +76,9 @@ PROBLEM_TYPES: tuple[ProblemType, ...] = (
                 "More records (or route points) than one request may carry; `max_records` says how "
                 "many.", "Split the batch into several requests."),
     ProblemType("too-many-full-solve-records", 413, "Too many records for the full solve",
-                "More records or dose samples fall outside the precomputed table (a client aerosol "
-                "type, pressure below 500 hPa, AOD above 2, ozone below 100 DU) than one request may "
+                "More records or dose samples fall outside the precomputed tables (an aerosol thicker "
+                "than a spectral optical depth of 3, with a single scattering albedo below 0.5 or an "
+                "asymmetry factor outside 0.3-0.9) than one request may "
                 "send to the full radiative-transfer solve; `max_full_solve_records` says how many.",
                 "Split the batch, or leave the aerosol type at its default."),
     ProblemType("body-too-large", 413, "The request body is too large",
@@ -282,7 +283,7 @@ def init_app(app: Flask) -> None:
         problem = Problem(413, "too-many-full-solve-records", "Too many records for the full solve",
                           f"{error.requested} records (or dose samples) fall outside the precomputed "
                           f"table and need the full radiative-transfer solve; at most {error.limit} "
-                          "are allowed per request. Split the batch, or use the default aerosol type.",
+                          "are allowed per request. Split the batch.",
                           extensions={"max_full_solve_records": error.limit})
         return response_for(problem)
 

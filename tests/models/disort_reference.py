@@ -66,13 +66,16 @@ def disort_fluxes(tau, ssa, moments, mu0, albedo, streams=STREAMS, level_heights
     return np.asarray(solver.rfldir)[:, -1].copy(), np.asarray(solver.rfldn)[:, -1].copy()
 
 
-def engine_layers(ozone_du=300.0, pressure_hpa=1013.25, aod_550=0.05, streams=STREAMS):
-    """The engine's layer optics for one column with the default aerosol type, and the
+def engine_layers(ozone_du=300.0, pressure_hpa=1013.25, aod_550=0.05, streams=STREAMS,
+                  aerosol_type=(optics.DEFAULT_ANGSTROM_EXPONENT,
+                                optics.DEFAULT_SINGLE_SCATTERING_ALBEDO,
+                                optics.DEFAULT_ASYMMETRY_FACTOR)):
+    """The engine's layer optics for one column with an aerosol type (Ångström exponent,
+    single scattering albedo, asymmetry factor > 0; the default one unless given), and the
     DISORT phase moments for them: ``(tau, ssa, g, moments)``, (L, W[, streams + 1])."""
-    g_aerosol = optics.DEFAULT_ASYMMETRY_FACTOR
-    layer = optics.layer_optics(np.array([ozone_du]), pressure_hpa, aod_550,
-                                optics.DEFAULT_ANGSTROM_EXPONENT,
-                                optics.DEFAULT_SINGLE_SCATTERING_ALBEDO, g_aerosol)
+    alpha, ssa_aerosol, g_aerosol = aerosol_type
+    layer = optics.layer_optics(np.array([ozone_du]), pressure_hpa, aod_550, alpha,
+                                ssa_aerosol, g_aerosol)
     tau, ssa, g = layer.tau[0], layer.ssa[0], layer.g[0]
     aerosol_share = g / g_aerosol  # of the layer's scattering
     moments = aerosol_share[..., None] * g_aerosol ** np.arange(streams + 1)
@@ -82,11 +85,12 @@ def engine_layers(ozone_du=300.0, pressure_hpa=1013.25, aod_550=0.05, streams=ST
 
 
 def pseudo_spherical_global(zenith_deg, ozone_du=300.0, pressure_hpa=1013.25, aod_550=0.05,
-                            albedo=0.05, streams=STREAMS):
+                            albedo=0.05, streams=STREAMS, aerosol_type=None):
     """Global horizontal flux at the surface per unit normal beam, (W,), by pseudo-spherical
     DISORT on the engine's layers for a sun at ``zenith_deg`` (its direction at the top of
-    the atmosphere)."""
-    tau, ssa, _, moments = engine_layers(ozone_du, pressure_hpa, aod_550, streams)
+    the atmosphere); ``aerosol_type`` as in :func:`engine_layers`."""
+    extra = {} if aerosol_type is None else {"aerosol_type": aerosol_type}
+    tau, ssa, _, moments = engine_layers(ozone_du, pressure_hpa, aod_550, streams, **extra)
     direct, diffuse = disort_fluxes(tau, ssa, moments, np.cos(np.radians(zenith_deg)), albedo,
                                     streams, atmosphere.LAYER_BOUNDARIES_KM)
     return direct + diffuse

@@ -121,7 +121,11 @@ def test_full_solve_budget_counts_only_records_outside_the_table():
     budget = FullSolveBudget(1)
     clear_sky.spectral_irradiance(zenith, 1.0, 300.0, 1013.25, 0.05, *default_type, full_solve_budget=budget)
     assert budget.used == 0
+    # A client aerosol inside the precomputed aerosol table does not count either.
+    clear_sky.spectral_irradiance(zenith, 1.0, 300.0, 1013.25, 0.05, optics.DEFAULT_AOD_550, 0.9,
+                                  *default_type[2:], full_solve_budget=budget)
+    assert budget.used == 0
     with pytest.raises(FullSolveLimitExceeded, match="3 records"):
-        # Three daytime records with a client Ångström exponent; the night record is free.
+        # Three daytime records with a strongly absorbing aerosol; the night record is free.
         clear_sky.spectral_irradiance(zenith, 1.0, 300.0, 1013.25, 0.05, optics.DEFAULT_AOD_550, 0.9,
-                                      *default_type[2:], full_solve_budget=budget)
+                                      0.3, default_type[3], full_solve_budget=budget)

@@ -89,9 +89,9 @@ def test_parts_follow_every_limit_the_deployment_sets(small_limits_server):
         answer = uv.irradiance(stops)
         assert answer.columns["id"] == stops["id"]
         assert counting.count("POST", "/v1/irradiance") >= 6  # 40 records / 7, and more when a body is too big
-        # Outside the precomputed table (AOD above 2) every record takes the full solve: at
-        # most 5 per request here, so parts of 7 are halved until they fit.
-        heavy = {name: values[:9] for name, values in stops.items()} | {"aod_550": [3.0] * 9}
+        # Outside the precomputed tables (a strongly absorbing aerosol) every record takes
+        # the full solve: at most 5 per request here, so parts of 7 are halved until they fit.
+        heavy = {name: values[:9] for name, values in stops.items()} | {"single_scattering_albedo": [0.3] * 9}
         solved = uv.irradiance(heavy)
     assert solved.columns["id"] == heavy["id"] and min(solved.columns["uv_index"]) >= 0
 

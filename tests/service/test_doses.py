@@ -234,9 +234,12 @@ def test_route_typos_are_errors_not_ignored(client):
 
 
 def test_dose_samples_beyond_the_full_solve_bound_are_a_413_problem(make_app, contract_client_for):
-    # 4 h at 30-min steps is 9 samples; a client aerosol type sends each to the full solve.
+    # 4 h at 30-min steps is 9 samples; a strongly absorbing aerosol (outside the
+    # precomputed tables) sends each to the full solve; an ordinary client aerosol does not.
     client = contract_client_for(make_app(UVDOSE_CACHE="off", UVDOSE_MAX_FULL_SOLVE_RECORDS=5))
-    hazy = dict(WINDOW, angstrom_exponent=0.9)
+    hazy = dict(WINDOW, angstrom_exponent=0.9, single_scattering_albedo=0.3)
+    own = dict(WINDOW, angstrom_exponent=0.9, single_scattering_albedo=0.85)
+    assert _post(client, "/v1/doses/windows", {"records": [own], "step_s": 1800}).status_code == 200
     r = _post(client, "/v1/doses/windows", {"records": [hazy], "step_s": 1800})
     assert r.status_code == 413
     assert r.get_json()["type"] == "urn:uvdose:problem:too-many-full-solve-records"

@@ -143,11 +143,13 @@ def test_the_column_layout_gives_the_same_numbers_as_rows(make_app, contract_cli
     body = post(client, {"columns": columns, "spectra": ["dna_damage", "uva"], "include_spectrum": True}).get_json()
     out = body["columns"]
     assert out["id"] == [r["id"] for r in rows]
-    # The second request also asks for the spectrum: same numbers up to the last bits.
-    assert out["uv_index"] == pytest.approx([r["uv_index"] for r in rows], rel=1e-12)
+    # The second request also asks for the spectrum, so it is weighted from the spectrum
+    # where the first took the weighted integrals: the two paths agree within 0.5 %
+    # (tests/models/test_weighted_table.py).
+    assert out["uv_index"] == pytest.approx([r["uv_index"] for r in rows], rel=5e-3)
     assert out["effective_w_m2.dna_damage"] == pytest.approx([r["effective_w_m2"]["dna_damage"] for r in rows],
-                                                             rel=1e-12)
-    assert out["effective_w_m2.uva"] == pytest.approx([r["effective_w_m2"]["uva"] for r in rows], rel=1e-12)
+                                                             rel=5e-3)
+    assert out["effective_w_m2.uva"] == pytest.approx([r["effective_w_m2"]["uva"] for r in rows], rel=5e-3)
     assert len(out["spectrum_w_m2_nm"]) == 5 and len(out["spectrum_w_m2_nm"][0]) == len(body["wavelength_nm"])
 
 
@@ -451,10 +453,14 @@ def test_a_nearly_non_scattering_aerosol_is_answered(exact, ssa):
 
 
 def test_records_beyond_the_full_solve_bound_are_a_413_problem_not_a_timeout(make_app, contract_client_for):
-    # A client aerosol type lies outside the precomputed table, so each such daytime record
-    # takes the full solve (~100 records/s per core); the bound keeps a request within time.
+    # A strongly absorbing aerosol (soot-like) lies outside the precomputed tables, so each
+    # such daytime record takes the full solve (~100 records/s per core); the bound keeps a
+    # request within time. A client aerosol inside the tables' range does not count.
     client = contract_client_for(make_app(UVDOSE_CACHE="off", UVDOSE_MAX_FULL_SOLVE_RECORDS=2))
-    hazy = {**ORCHARD, "angstrom_exponent": 0.9, "single_scattering_albedo": 0.88}
+    hazy = {**ORCHARD, "angstrom_exponent": 0.9, "single_scattering_albedo": 0.3}
+    own = {**ORCHARD, "angstrom_exponent": 0.9, "single_scattering_albedo": 0.88, "aod_550": 0.6,
+           "pressure_hpa": 350, "ozone_du": 60}
+    assert post(client, {"records": [own] * 50}).status_code == 200
     assert post(client, {"records": [hazy, hazy]}).status_code == 200
     response = post(client, {"records": [hazy, hazy, hazy, ORCHARD]})
     assert response.status_code == 413
