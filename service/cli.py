@@ -57,7 +57,9 @@ def _with_options(data: bytes, media_type: str, options: dict[str, str], spectra
         query["include_spectrum"] = "true"
     if media_type != "application/json" or not query:
         return data, query
-    body = orjson.loads(data)
+    from uvdose.service.json_body import parse_json_body
+
+    body = parse_json_body(data)  # the service's strict reading: its 400 problem on a bad file
     if isinstance(body, dict):
         body.update({key: value for key, value in options.items()})
         if spectra:
@@ -132,7 +134,11 @@ def run_batch(
 
     in_kind = _kind(source, input_format, tuple(_MEDIA_TYPES))
     out_kind = _kind(target, output_format, OUTPUT_FORMATS)
-    data, query = _with_options(_read(source), _MEDIA_TYPES[in_kind], options or {}, spectra, include_spectrum)
+    try:
+        data, query = _with_options(_read(source), _MEDIA_TYPES[in_kind], options or {}, spectra, include_spectrum)
+    except Problem as problem:
+        sys.stderr.write(response_for(problem).get_data(as_text=True) + "\n")
+        return EXIT_INVALID
     with tempfile.TemporaryDirectory(prefix="uvdose-batch-") as store:
         overrides = {"UVDOSE_JOBS_STORE": store, "UVDOSE_JOBS_METADATA_DIR": str(Path(store) / ".metadata"),
                      "REDIS_URL": None, "UVDOSE_DASK_WORKERS": workers}

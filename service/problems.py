@@ -164,12 +164,32 @@ class Problem(Exception):
         return f"{self.status} {self.title}: {self.detail or ''}"
 
 
+class FieldErrors(list):
+    """Field errors as found, where describing every one would cost unbounded work: the
+    listed :class:`FieldError` entries, and ``unlisted`` more counted but not described, of
+    the records at ``unlisted_indices``."""
+
+    def __init__(self, listed: Sequence[FieldError] = (), unlisted: int = 0,
+                 unlisted_indices: Sequence[int] = ()) -> None:
+        super().__init__(listed)
+        self.unlisted = unlisted
+        self.unlisted_indices = unlisted_indices
+
+
+def unlisted_errors(errors: Sequence[FieldError]) -> int:
+    """How many errors ``errors`` counts beyond those it lists (0 for a plain list)."""
+    return getattr(errors, "unlisted", 0)
+
+
 def invalid_records(errors: Sequence[FieldError], n: int, what: str = "record",
                     error_count: int | None = None) -> Problem:
     """The 422 problem for ``errors`` found in ``n`` records (``what`` names them in the detail);
     ``invalid-options`` when no error names a record. ``error_count``: how many errors were
-    found, when ``errors`` lists only some."""
-    bad_count = len({error.index for error in errors if error.index is not None})
+    found, when ``errors`` lists only some (else the count a :class:`FieldErrors` carries)."""
+    if error_count is None and unlisted_errors(errors):
+        error_count = len(errors) + unlisted_errors(errors)
+    indices = {error.index for error in errors if error.index is not None}
+    bad_count = len(indices.union(getattr(errors, "unlisted_indices", ())))
     if not bad_count:  # only request-wide errors: options, or column names in the column layout
         return Problem(422, "invalid-options", "The request options are invalid", "Nothing was computed.",
                        list(errors), error_count=error_count)

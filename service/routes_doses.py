@@ -41,8 +41,8 @@ from uvdose.service import cautions, dose_answers, engine_gateway, metrics, unce
 from uvdose.service.column_checks import check_columns
 from uvdose.service.dose_answers import STREAMED_MEDIA_TYPES, Chunk, DoseAnswer
 from uvdose.service.negotiation import CSV_MEDIA_TYPE, JSON_MEDIA_TYPE, NDJSON_MEDIA_TYPE, produces
-from uvdose.service.problems import (FieldError, NameRecordError, Problem, by_schema, invalid_records,
-                                     records_named)
+from uvdose.service.problems import (FieldError, FieldErrors, NameRecordError, Problem, by_schema, invalid_records,
+                                     records_named, unlisted_errors)
 from uvdose.service.request_body import read_body
 from uvdose.service.record_fields import (
     AOD_550,
@@ -416,8 +416,8 @@ def _daily_table(daily: Any, n_fields: int, n_days: int):
             raise
         raise invalid_records(problem.errors, 0) from None
     entries, errors = check_columns(raw, _DAILY_ENTRIES, n=n)
-    return entries, [FieldError(field=f"daily.{error.field}" + (f"[{error.index}]" if error.index is not None else ""),
-                                reason=error.reason) for error in errors]
+    return entries, FieldErrors([FieldError(field=f"daily.{error.field}" + (f"[{error.index}]" if error.index is not None else ""),
+                                            reason=error.reason) for error in errors], unlisted_errors(errors))
 
 
 def _daily_entry_names(error: RecordError) -> FieldError:
@@ -761,9 +761,14 @@ def _read_routes(raw_routes: list) -> tuple[vehicle_routes.RoutePoints, dict[str
     else:
         columns = {name: np.zeros(0) for name in ("time_unix_s", "latitude_deg", "longitude_deg")}
         columns.update(stop=np.zeros(0, bool), gap=np.zeros(0, bool))
-    if errors:
+        point_errors = []
+    if errors or unlisted_errors(point_errors):
         errors.sort(key=lambda error: error.index)
-        raise invalid_records(errors, n_routes, "route")
+        # Bad points beyond those described are counted, by route (service.column_checks).
+        point_routes = np.asarray(flat.point_route, dtype=np.int64)[list(getattr(point_errors, "unlisted_indices", ()))]
+        raise invalid_records(FieldErrors(errors, unlisted_errors(route_errors) + unlisted_errors(point_errors),
+                                          [*getattr(route_errors, "unlisted_indices", ()), *point_routes.tolist()]),
+                              n_routes, "route")
     points = vehicle_routes.RoutePoints(route=np.asarray(flat.point_route, dtype=np.int64),
                                 time_unix_s=columns["time_unix_s"], latitude_deg=columns["latitude_deg"],
                                 longitude_deg=columns["longitude_deg"], stop=columns["stop"], gap=columns["gap"])

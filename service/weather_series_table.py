@@ -22,7 +22,7 @@ from marshmallow import validate
 from uvdose.models import weather_series
 from uvdose.models.record_errors import RecordError
 from uvdose.service.column_checks import check_columns
-from uvdose.service.problems import FieldError, invalid_records, records_named
+from uvdose.service.problems import FieldError, FieldErrors, invalid_records, records_named, unlisted_errors
 from uvdose.service.record_fields import (
     CLOUD_COVER,
     CLOUD_FACTOR,
@@ -119,8 +119,9 @@ def read_weather(table: Any, schema: RecordSchema, ids: np.ndarray, places: Mapp
     named = [entry_error(error.field, error.index, error.reason) for error in errors]
     named += [entry_error(index_wire, int(i), f"must be a record index 0–{n_records - 1}")
               for i in np.flatnonzero(~np.isnan(owner) & (owner >= n_records))]
-    if named:
-        raise invalid_records(named, n_records)
+    if named or unlisted_errors(errors):
+        # Bad entries beyond those described are counted (service.column_checks), not named.
+        raise invalid_records(FieldErrors(named, unlisted_errors(errors)), n_records)
 
     def name_reading_error(error: RecordError) -> FieldError:
         return entry_error(_WIRE.get(error.field, "time"), error.index, error.reason)

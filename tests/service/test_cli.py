@@ -100,6 +100,15 @@ def test_a_bad_file_is_rejected_whole_with_the_problem_on_stderr(tmp_path, capsy
     assert not target.exists()
 
 
+def test_a_json_file_is_read_as_strictly_as_a_request_body(tmp_path, capsys):
+    source, target = tmp_path / "twice.json", tmp_path / "out.json"
+    source.write_text('{"records": [{"time": "2026-07-14T09:10:00Z", "lat": 45.7, "lat": 45.8, "lon": 4.8}]}')
+    assert run_batch(str(source), str(target), spectra=["erythema"], progress=False) == EXIT_INVALID
+    problem = json.loads(capsys.readouterr().err)
+    assert problem["type"] == "urn:uvdose:problem:malformed-body" and "'lat' twice" in problem["detail"]
+    assert not target.exists()
+
+
 def test_every_operation_reads_and_writes_csv_json_and_parquet(tmp_path, make_app, contract_client_for,
                                                                dask_scheduler):
     import pyarrow as pa

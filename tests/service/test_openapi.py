@@ -145,10 +145,13 @@ def all_checks_schema():
     config = SchemathesisConfig.from_dict({
         "phases": {"coverage": {"enabled": False}}, "seed": 20261202,
         "headers": {"Accept-Encoding": "identity"}, **_DOCUMENTED_REFUSALS})
+    # The jobs operations are left to their own tests: each generated submission would start
+    # a job on the Dask cluster, and their record arrays are bounded by the body size, not by
+    # the request schemas' maxItems they share with the synchronous operations.
     return schemathesis.openapi.from_wsgi("/openapi.yaml", app, config=config)
 
 
-all_checks = schemathesis.pytest.from_fixture("all_checks_schema")
+all_checks = schemathesis.pytest.from_fixture("all_checks_schema").exclude(path_regex="^/v1/jobs")
 
 
 @pytest.mark.slow

@@ -263,3 +263,25 @@ def test_almost_no_aerosol_at_low_pressure_is_computed_not_a_500(client):
     query = "date=2026-04-01&lat=-11.23&lon=-28.64&ozone_du=50&aod_550=1.192092896e-07&pressure_hpa=300&step_min=5"
     response = client.get("/v1/pictures/uv-index-day?" + query, headers={"Accept": "application/json"})
     assert response.status_code == 200, response.get_data(as_text=True)
+
+
+def test_errors_beyond_the_described_records_are_counted_as_described_ones_would_be(client, monkeypatch):
+    from uvdose.service import column_checks
+
+    bad_points = [dict(FIXES[0], lat=91), dict(FIXES[1], lat="x", lon=200), {"lat": 48.1, "lon": 11.5},
+                  dict(FIXES[1], stop="yes"), dict(FIXES[0], lat=-91)] * 3
+    records = [{"time": "2026-07-15T09:00:00Z", "lat": 91, "lon": 1, "surface_albedo": 0.1, "surface_type": "grass"},
+               {"time": "2026-07-15T09:00:00Z", "lat": 45, "lon": 1, "surface_albedo": 0.1, "surface_type": "grass"},
+               {"lat": 45, "lon": 1, "ozone_du": 20}] * 4
+    requests = [(ROUTES, {"routes": [{"id": "a", "points": bad_points}, {"id": "b", "points": FIXES},
+                                     {"id": "c", "points": bad_points[::-1]}]}),
+                ("/v1/irradiance", {"records": records}),
+                (FIELDS, dict(SEASON, daily={"field": [0, 1, 1.5, 0], "day": ["2026-05-01", "x", "2026-05-02", None]}))]
+    for path, body in requests:
+        described = client.post(path, json=body).get_json()
+        monkeypatch.setattr(column_checks, "DESCRIBED_RECORDS_AT_MOST", 2)
+        counted = client.post(path, json=body).get_json()
+        monkeypatch.undo()
+        assert counted["error_count"] == described["error_count"] > len(counted["errors"]), path
+        assert counted["detail"] == described["detail"]
+        assert all(error in described["errors"] for error in counted["errors"])
