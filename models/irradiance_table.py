@@ -34,7 +34,9 @@ beam to the diffuse field and leaves their sum much closer to log-linear. The ga
 weighted sum run as one sparse-matrix product per array (``corner_weights``).
 Node placement was chosen so that the table stays within 1 % of the full solve for
 the UV Index, every action spectrum of ``models.action_spectra`` and the UVB/UVA bands
-over the whole range (``tests/models/test_irradiance_table.py``).
+over ozone 100-700 DU, pressure 500-1060 hPa and AOD(550) 0-2, and within 2 % over the
+whole range (measured worst 1.75 %, with ozone under 75 DU, AOD near 4 and the sun below
+10 degrees; ``tests/models/test_irradiance_table.py``).
 
 Range: true zenith 0–96° (the sun up to 6° below the horizon: the diffuse light of
 civil twilight, no direct beam beyond 90°), and the record schema's ozone 50–700 DU,
@@ -287,15 +289,20 @@ def corner_weights(axes):
     """
     n = axes[0][0].shape[0]
     shape = tuple(count for _, _, count in axes)
-    flat = np.zeros((n, 1), dtype=np.int64)
-    weight = np.ones((n, 1), dtype=np.float64)
+    # int32 cell numbers and float32 weights (the products are float32 anyway): at these
+    # sizes building the corners costs more than the product, and half the bytes halve it
+    # (measured 2.5x faster for 64 corners).
+    if int(np.prod(shape)) >= 2 ** 31:
+        raise ValueError("table too large for int32 cell numbers")
+    flat = np.zeros((n, 1), dtype=np.int32)
+    weight = np.ones((n, 1), dtype=np.float32)
     for axis, (index, axis_weight, _) in enumerate(axes):
         stride = int(np.prod(shape[axis + 1:]))
-        flat = (flat[:, :, None] + (index * stride)[:, None, :]).reshape(n, -1)
-        weight = (weight[:, :, None] * axis_weight[:, None, :]).reshape(n, -1)
+        flat = (flat[:, :, None] + (index * stride).astype(np.int32)[:, None, :]).reshape(n, -1)
+        weight = (weight[:, :, None] * axis_weight.astype(np.float32)[:, None, :]).reshape(n, -1)
     corners = flat.shape[1]
     return scipy.sparse.csr_array(
-        (weight.astype(np.float32).ravel(), flat.ravel(), np.arange(0, n * corners + 1, corners)),
+        (weight.ravel(), flat.ravel(), np.arange(0, n * corners + 1, corners, dtype=np.int32)),
         shape=(n, int(np.prod(shape))))
 
 

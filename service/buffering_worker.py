@@ -25,7 +25,9 @@ serve it, from memory, so threads only ever compute. While receiving:
   of memory (each reserves its length, or the limit when chunked, once its headers are in);
   a request with no room waits, its bytes left to TCP, until earlier ones go to the threads;
 * ``Expect: 100-continue`` is answered once the headers are in and the body is not too
-  large, so a client waiting for it sends its body.
+  large, so a client waiting for it sends its body;
+* an answer that makes no progress for ``UVDOSE_BODY_TIMEOUT_S`` (a client that stopped
+  reading) is cut and logged, so slow readers do not hold threads either.
 
 A request the framing scan cannot make sense of (no valid length, an odd transfer
 coding, headers past gunicorn's limits) is handed to gunicorn's own parser as it is,
@@ -448,7 +450,13 @@ class BufferingWorker(gthread.ThreadWorker):
     def handle_request(self, req, conn):
         if getattr(conn, "sent_continue", False):
             req._expected_100_continue = False  # answered already, from the event loop
-        return super().handle_request(req, conn)
+        try:
+            return super().handle_request(req, conn)
+        except (socket.timeout, TimeoutError):
+            # The client stopped reading its answer (BufferedConn.init's send timeout).
+            self.log.warning("client cut off: the answer made no progress for %.0f s (the client stopped "
+                             "reading); connection closed", self.body_timeout_s)
+            return False
 
     # -- after a request -----------------------------------------------------------------
 

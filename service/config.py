@@ -214,8 +214,9 @@ SERVER_SETTINGS: tuple[Setting, ...] = (
           "Seconds a client has, from its request's first byte, to send the request line and "
           "headers; then a 408 problem and the connection is closed (logged)."),
     _same("UVDOSE_BODY_TIMEOUT_S", 60.0, _positive_number,
-          "Seconds a client has, after the headers, to send the whole body; then a 408 problem "
-          "and the connection is closed (logged)."),
+          "Seconds a client has, after the headers, to send the whole body (then a 408 problem "
+          "and the connection is closed, logged); also the longest an answer may make no progress "
+          "because the client stopped reading (then it is cut, logged)."),
     _same("UVDOSE_GRACEFUL_TIMEOUT", 30, _whole_number(1),
           "Seconds in-flight requests get to finish after SIGTERM."),
     _same("UVDOSE_KEEPALIVE", 5, _whole_number(0), "Seconds an idle keep-alive connection stays open."),

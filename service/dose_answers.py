@@ -9,9 +9,9 @@ objects, as in the rows of the JSON answer) and the engine samples it took. From
   names as in CSV) for a ``columns`` request or ``answer_layout: columns``; the answer's
   other members first, ``samples`` once every chunk is done.
 * ``application/x-ndjson``, streamed: the first line ``{"envelope": {...}}`` (the JSON
-  answer's members besides ``results`` and ``samples``), then one line per result row (for
-  fields one per field and day, with the field's ``id``), then ``{"complete": {"results":
-  n, "samples": n}}``. An answer that fails part-way ends with ``{"error": {problem}}``
+  answer's members besides ``results`` and ``samples``), then one line per result as
+  ``results`` holds it (for fields one per field, with its ``days``, as the jobs' NDJSON
+  downloads have it), then ``{"complete": {"results": n, "samples": n}}``. An answer that fails part-way ends with ``{"error": {problem}}``
   instead, so a client can always tell a complete answer from a cut one.
 * ``text/csv``, streamed: a header line of the flat column names, then one line per result
   row, the ``caution`` column last on every row. A CSV answer that fails part-way is cut
@@ -98,10 +98,8 @@ def _whole_json(answer: DoseAnswer, chunks: Iterator[Chunk], envelope: dict[str,
         if answer.layout == "columns":
             for name, values in answer_streams.flat_columns(chunk.columns).items():
                 flat.setdefault(name, []).extend(values)
-        elif answer.rows_per_result:
-            results.extend(_grouped(chunk.columns, answer.rows_per_result))
         else:
-            results.extend(rows_from_columns(chunk.columns))
+            results.extend(_results(answer, chunk))
     _complete(answer, rows)
     body = dict(envelope, samples=samples)
     if answer.layout == "columns":
@@ -109,6 +107,13 @@ def _whole_json(answer: DoseAnswer, chunks: Iterator[Chunk], envelope: dict[str,
     else:
         body["results"] = results
     return json_response(body)
+
+
+def _results(answer: DoseAnswer, chunk: Chunk) -> list[dict[str, Any]]:
+    """A chunk's results as the JSON answer's ``results`` holds them."""
+    if answer.rows_per_result:
+        return _grouped(chunk.columns, answer.rows_per_result)
+    return rows_from_columns(chunk.columns)
 
 
 def _row_count(chunk: Chunk) -> int:
@@ -122,12 +127,13 @@ def _complete(answer: DoseAnswer, rows: int) -> None:
 
 def _ndjson(answer: DoseAnswer, chunks: Iterator[Chunk], envelope: dict[str, Any]) -> Iterator[bytes]:
     yield answer_streams.ndjson_line({"envelope": envelope})
-    samples = rows = 0
+    samples = rows = done = 0
     try:
         for chunk in chunks:
-            data = answer_streams.ndjson_lines(rows_from_columns(chunk.columns))
-            samples, rows = samples + chunk.samples, rows + _row_count(chunk)
-            chunk = None  # freed before the next chunk is computed
+            results = _results(answer, chunk)
+            data = answer_streams.ndjson_lines(results)
+            samples, rows, done = samples + chunk.samples, rows + _row_count(chunk), done + len(results)
+            chunk = results = None  # freed before the next chunk is computed
             yield data
     except Problem as problem:  # the request deadline, say: the status line is gone, so the last line says it
         log.warning("streamed dose answer stopped after %d result rows: %s", rows, problem)
@@ -141,7 +147,7 @@ def _ndjson(answer: DoseAnswer, chunks: Iterator[Chunk], envelope: dict[str, Any
             500, "Internal Server Error", f"The answer failed after {rows} result rows and is incomplete.")})
         return
     _complete(answer, rows)
-    yield answer_streams.ndjson_line({"complete": {"results": rows, "samples": samples}})
+    yield answer_streams.ndjson_line({"complete": {"results": done, "samples": samples}})
 
 
 def _csv(answer: DoseAnswer, chunks: Iterator[Chunk], envelope: dict[str, Any]) -> Iterator[str]:

@@ -245,3 +245,27 @@ def test_bodies_past_the_memory_budget_wait_their_turn_and_are_all_answered(tmp_
             sock.close()
         _clean_up(process, logs)
     assert [answer.split(b"\r\n", 1)[0] for answer in answers] == [b"HTTP/1.1 200 OK"] * 20
+
+
+def test_a_client_that_stops_reading_its_answer_is_cut_off_and_logged(tmp_path):
+    process, base_url, _, logs = _start(tmp_path, "uvdose.service.app:create_app()",
+                                        {"UVDOSE_BODY_TIMEOUT_S": "2", "UVDOSE_CACHE": "off"})
+    body = json.dumps({"records": _plots(2000), "include_spectrum": True}).encode()
+    try:
+        sock = socket.socket()
+        sock.setsockopt(socket.SOL_SOCKET, socket.SO_RCVBUF, 4096)  # a small window, never read
+        sock.connect(("127.0.0.1", _port(base_url)))
+        sock.sendall(JSON_HEAD + b"Content-Length: %d\r\n\r\n" % len(body) + body)
+        deadline = time.monotonic() + 30
+        cut = []
+        while not cut and time.monotonic() < deadline:
+            time.sleep(0.5)
+            cut = [line for line in _json_lines(tmp_path / "stderr.log")
+                   if line.get("message", "").startswith("client cut off: the answer made no progress")]
+        with urllib.request.urlopen(base_url + "/livez", timeout=10) as reply:
+            livez = reply.status
+        sock.close()
+    finally:
+        _clean_up(process, logs)
+    assert cut, "the stalled reader was never cut off"
+    assert livez == 200
