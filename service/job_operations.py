@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import csv
 import io
+import re
 import sys
 from dataclasses import dataclass
 from datetime import date
@@ -120,12 +121,13 @@ class Submission:
         out.append((start, len(weights)))
         return out
 
-    def part_body(self, first: int, end: int) -> bytes:
-        """The body of the records first..end-1, of the same kind as the submission."""
+    def part(self, first: int, end: int) -> "PartBody":
+        """The body of the records first..end-1, of the same kind as the submission, and
+        where its table entries stand in the submitted tables."""
         if self.csv_rows is not None:
             text = io.StringIO(newline="")
             csv.writer(text).writerows([self.csv_rows[0]] + self.csv_rows[1 + first:1 + end])
-            return text.getvalue().encode()
+            return PartBody(text.getvalue().encode(), {})
         body = dict(self.body)
         member = self.operation.records_member
         if member == "records" and "columns" in body:
@@ -135,28 +137,68 @@ class Submission:
                                for name, values in body["columns"].items()}
         else:
             body[member] = body[member][first:end]
+        positions = {}
         for table in self.operation.tables:
             if table in body:
-                body[table] = _table_rows_of(body[table], self.operation.table_index, first, end)
-        return orjson.dumps(body)
+                body[table], kept = _table_rows_of(body[table], self.operation.table_index, first, end)
+                if kept is not None:
+                    positions[table] = kept
+        return PartBody(orjson.dumps(body), positions)
 
 
-def _table_rows_of(table: Any, index_column: str, first: int, end: int) -> Any:
-    """The entries of a column table for records first..end-1, re-indexed from 0 (a table
-    the endpoint will refuse goes as it came, for the endpoint to name what is wrong)."""
+@dataclass(frozen=True)
+class PartBody:
+    """A part's body, and ``table_positions``: for each table cut to the part's entries
+    (``daily``, ``weather``), the position in the submitted table of each entry kept."""
+
+    body: bytes
+    table_positions: dict[str, list[int]]
+
+
+_TABLE_ENTRY = re.compile(r"^(?P<table>[a-z_]+)\.(?P<column>[^\[]+)\[(?P<entry>\d+)\]$")
+
+
+def whole_table_field(field: str, table_positions: Mapping[str, list[int]]) -> str:
+    """A part's error field ``<table>.<column>[<entry>]`` named by the entry's place in the
+    submitted table (any other field as it is)."""
+    match = _TABLE_ENTRY.match(field)
+    if match is None or match["table"] not in table_positions:
+        return field
+    positions, entry = table_positions[match["table"]], int(match["entry"])
+    if entry >= len(positions):
+        return field
+    return f"{match['table']}.{match['column']}[{positions[entry]}]"
+
+
+def batch_wide(problem: dict[str, Any], first: int, table_positions: Mapping[str, list[int]]) -> dict[str, Any]:
+    """A part's problem (as JSON) named as the whole submission: record indices counted from
+    the start of the batch (``first`` is the part's first record), table entries by their
+    place in the submitted tables."""
+    for error in problem.get("errors") or []:
+        if error.get("index") is not None:
+            error["index"] += first
+        if isinstance(error.get("field"), str):
+            error["field"] = whole_table_field(error["field"], table_positions)
+    return problem
+
+
+def _table_rows_of(table: Any, index_column: str, first: int, end: int) -> tuple[Any, list[int] | None]:
+    """The entries of a column table for records first..end-1, re-indexed from 0, and the
+    positions of those entries in ``table`` (a table the endpoint will refuse goes as it
+    came, positions ``None``, for the endpoint to name what is wrong)."""
     if not isinstance(table, dict) or not isinstance(table.get(index_column), list):
-        return table
+        return table, None
     index = table[index_column]
     if any(not isinstance(value, int) or isinstance(value, bool) for value in index):
-        return table
+        return table, None
     lengths = {len(values) for values in table.values() if isinstance(values, list)}
     if lengths != {len(index)}:
-        return table
+        return table, None
     index_array = np.asarray(index, dtype=np.int64)
     keep = np.flatnonzero((index_array >= first) & (index_array < end))
     out = {name: [values[i] for i in keep] if isinstance(values, list) else values for name, values in table.items()}
     out[index_column] = (index_array[keep] - first).tolist()
-    return out
+    return out, keep.tolist()
 
 
 def parquet_as_csv(data: bytes) -> bytes:
@@ -185,11 +227,11 @@ def parquet_as_csv(data: bytes) -> bytes:
 
 
 def read_submission(operation: Operation, data: bytes, media_type: str, query: Mapping[str, str],
-                    probe: Callable[[Operation, str, Mapping[str, str], bytes], None]) -> Submission:
+                    probe: Callable[[Operation, str, Mapping[str, str], "PartBody"], None]) -> Submission:
     """The checked submission of ``data``; raises the endpoint's problem for a bad one.
 
-    ``probe(operation, media_type, query, body)`` runs the endpoint on a one-record body and
-    raises its problem if it refuses it."""
+    ``probe(operation, media_type, query, part)`` runs the endpoint on a one-record
+    :class:`PartBody` and raises its problem, named as the whole submission, if it refuses it."""
     if media_type == PARQUET_MEDIA_TYPE:
         data, media_type = parquet_as_csv(data), CSV_MEDIA_TYPE
     if media_type == CSV_MEDIA_TYPE and not operation.takes_csv:
@@ -201,5 +243,5 @@ def read_submission(operation: Operation, data: bytes, media_type: str, query: M
         submission = Submission(operation, media_type, dict(query), None, rows, records)
     else:
         submission = Submission(operation, JSON_MEDIA_TYPE, {}, orjson.loads(data), None, records)
-    probe(operation, submission.media_type, submission.query, submission.part_body(0, 1))
+    probe(operation, submission.media_type, submission.query, submission.part(0, 1))
     return submission

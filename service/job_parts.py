@@ -7,7 +7,7 @@ size is bounded by ``UVDOSE_JOB_PART_WORK``) and writes the answer's rows as NDJ
 to ``parts/<part>.ndjson``. A part whose rows are already there is not run again, so a rerun
 (a worker lost mid-part, two API instances resuming one job) cannot duplicate a record. A
 part the endpoint refuses leaves its problem in ``failed/<part>.json`` (record indices made
-batch-wide) and no rows.
+and table entries named as the whole submission names them) and no rows.
 """
 from __future__ import annotations
 
@@ -17,6 +17,7 @@ from typing import Any, Callable, Mapping
 from flask import Flask
 
 from uvdose.service.answer_streams import ndjson_lines
+from uvdose.service.job_operations import batch_wide
 from uvdose.service.job_store import JobStore
 
 _APPS: dict[Callable[..., Flask], Flask] = {}
@@ -58,14 +59,6 @@ def answer_rows(answer_body: dict[str, Any]) -> list[dict[str, Any]]:
     return rows_from_columns(answer_body.pop("columns"))
 
 
-def batch_wide(problem: dict[str, Any], first: int) -> dict[str, Any]:
-    """A part's problem with its record indices counted from the start of the whole batch."""
-    for error in problem.get("errors") or []:
-        if error.get("index") is not None:
-            error["index"] += first
-    return problem
-
-
 def run_part(factory: Callable[..., Flask], store_url: str, job_id: str, part: int) -> int:
     """Run part ``part`` of job ``job_id`` on the app ``factory`` builds (pickled by name, so the
     worker imports it); the records it wrote (0 when there was nothing to do)."""
@@ -79,7 +72,7 @@ def run_part(factory: Callable[..., Flask], store_url: str, job_id: str, part: i
     if response.status_code >= 500:  # the service's fault, not the records': Dask retries the part
         raise RuntimeError(f"part {part} of job {job_id}: the endpoint answered {response.status_code}: {body}")
     if response.status_code != 200:
-        store.write_failure(job_id, part, batch_wide(body, first))
+        store.write_failure(job_id, part, batch_wide(body, first, store.read_table_positions(job_id, part)))
         return 0
     rows = answer_rows(body)
     if len(rows) != end - first:

@@ -5,6 +5,8 @@ One folder per job::
 
     <store>/<job id>/plan.json            the job's parts: operation, media type, query, records
     <store>/<job id>/inputs/<part>.bin    the request body of each part (written at submission)
+    <store>/<job id>/tables/<part>.json   where the part's daily or weather table entries
+                                          stand in the submitted tables (parts cut from one)
     <store>/<job id>/parts/<part>.ndjson  the result rows of each part (written by a worker)
     <store>/<job id>/failed/<part>.json   the problem of a part its endpoint refused
     <store>/<job id>/envelope.json        the answer's members other than its rows (from part 0)
@@ -75,6 +77,9 @@ class JobStore:
     def write_input(self, job_id: str, part: int, data: bytes) -> None:
         self.write(job_id, f"inputs/{_part_name(part)}.bin", data)
 
+    def write_table_positions(self, job_id: str, part: int, positions: dict[str, list[int]]) -> None:
+        self.write_json(job_id, f"tables/{_part_name(part)}.json", positions)
+
     def write_part(self, job_id: str, part: int, ndjson: bytes) -> None:
         self.write(job_id, f"parts/{_part_name(part)}.ndjson", ndjson)
 
@@ -101,6 +106,11 @@ class JobStore:
 
     def read_input(self, job_id: str, part: int) -> bytes:
         return self.read(job_id, f"inputs/{_part_name(part)}.bin")
+
+    def read_table_positions(self, job_id: str, part: int) -> dict[str, list[int]]:
+        """Where the part's table entries stand in the submitted tables ({} for a part with none)."""
+        name = f"tables/{_part_name(part)}.json"
+        return self.read_json(job_id, name) if self.exists(job_id, name) else {}
 
     def part_path(self, job_id: str, part: int) -> str:
         return self.path(job_id, "parts", f"{_part_name(part)}.ndjson")

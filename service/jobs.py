@@ -125,7 +125,10 @@ class Jobs:
         job_id = uuid.uuid4().hex
         bounds = submission.bounds(self.part_work)
         for part, (first, end) in enumerate(bounds):
-            self.store.write_input(job_id, part, submission.part_body(first, end))
+            cut = submission.part(first, end)
+            self.store.write_input(job_id, part, cut.body)
+            if cut.table_positions:
+                self.store.write_table_positions(job_id, part, cut.table_positions)
         plan = {"operation": operation.name, "path": operation.path, "media_type": submission.media_type,
                 "query": submission.query, "bounds": bounds, "records": submission.records}
         self.store.write_json(job_id, "plan.json", plan)
@@ -135,11 +138,11 @@ class Jobs:
         return self.status(job_id, resume=False)
 
     def _probe(self, operation: job_operations.Operation, media_type: str, query: Mapping[str, str],
-               body: bytes) -> None:
-        """Raise the endpoint's problem if it refuses ``body``."""
-        response = job_parts.answer(self.factory, operation.path, media_type, query, body)
+               part: job_operations.PartBody) -> None:
+        """Raise the endpoint's problem, named as the whole submission, if it refuses ``part``."""
+        response = job_parts.answer(self.factory, operation.path, media_type, query, part.body)
         if response.status_code != 200:
-            problem = response.get_json()
+            problem = job_operations.batch_wide(response.get_json(), 0, part.table_positions)
             if not problem["type"].startswith(TYPE_PREFIX):
                 raise RuntimeError(f"the {operation.name} endpoint answered the probe with {response.status_code}")
             raise Problem(response.status_code, problem["type"][len(TYPE_PREFIX):], problem["title"],
