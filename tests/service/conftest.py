@@ -230,6 +230,21 @@ def running_gunicorn(tmp_path_factory, app: str = "uvdose.service.app:create_app
         log.close()
 
 
+@pytest.fixture(scope="module")
+def dask_scheduler():
+    """The address of the embedded Dask cluster (a scheduler and two worker processes, what
+    ``uvdose serve`` starts), for a module's jobs. Its workers' cache is off: with it on, a
+    value depends on which record filled its state's entry first (within the cache's stated
+    tolerance), and a job's rows could not be compared exactly with the endpoint's."""
+    from uvdose.service import job_cluster
+
+    with pytest.MonkeyPatch.context() as environment:
+        environment.setenv("UVDOSE_CACHE", "off")
+        process, address = job_cluster.start_embedded(2)
+        yield address
+        job_cluster.stop_embedded(process)
+
+
 @pytest.fixture(scope="session")
 def gunicorn_server(tmp_path_factory):
     """Base URL of a real gunicorn on its defaults (see :func:`running_gunicorn`)."""

@@ -20,7 +20,7 @@ from pathlib import Path
 import orjson
 import pytest
 
-from uvdose.service import job_cluster, jobs
+from uvdose.service import jobs
 from uvdose.service.app import create_app
 from tests.service.contract_examples import examples
 from tests.service.conftest import load_spec, running_gunicorn
@@ -31,25 +31,13 @@ SYNC_PATHS = {"irradiance": "/v1/irradiance", "ozone": "/v1/ozone", "windows": "
 JOB_EXAMPLES = [e for e in examples(SPEC) if e.path.startswith("/v1/jobs/") and e.content_type == "application/json"]
 
 
-@pytest.fixture(scope="module")
-def scheduler():
-    """The embedded cluster, two worker processes (what ``uvdose serve`` starts), its
-    workers' cache off: with it on, a value depends on which record filled its state's
-    entry first (within the cache's stated tolerance), and rows could not be compared exactly."""
-    with pytest.MonkeyPatch.context() as environment:
-        environment.setenv("UVDOSE_CACHE", "off")
-        process, address = job_cluster.start_embedded(2)
-        yield address
-        job_cluster.stop_embedded(process)
-
-
 @pytest.fixture
-def make_jobs_app(scheduler, tmp_path, redis_client, redis_url, contract_client_for):
+def make_jobs_app(dask_scheduler, tmp_path, redis_client, redis_url, contract_client_for):
     """(app, contract client) sharing one results store and one Redis database."""
     made = []
 
     def build(**config):
-        settings = {"TESTING": True, "UVDOSE_DASK_SCHEDULER": scheduler, "UVDOSE_JOBS_STORE": str(tmp_path / "store"),
+        settings = {"TESTING": True, "UVDOSE_DASK_SCHEDULER": dask_scheduler, "UVDOSE_JOBS_STORE": str(tmp_path / "store"),
                     "REDIS_URL": redis_url, "UVDOSE_CACHE": "off", "UVDOSE_REQUEST_LOG": False,
                     "UVDOSE_JOB_PART_WORK": 3, **config}
         app = create_app(settings)
@@ -258,13 +246,13 @@ def test_the_job_survives_the_api_instance_that_accepted_it(make_jobs_app):
     _ids_once(second, job_id, 16)
 
 
-def test_a_worker_killed_mid_job_costs_nothing_but_time(make_jobs_app, scheduler):
+def test_a_worker_killed_mid_job_costs_nothing_but_time(make_jobs_app, dask_scheduler):
     from distributed import Client
 
     app, client = make_jobs_app(UVDOSE_JOB_PART_WORK=365)
     job_id = client.post("/v1/jobs/fields", json=_season_body(14)).get_json()["id"]
     wait_for(client, job_id, states=("running",))
-    with Client(scheduler, set_as_default=False) as observer:
+    with Client(dask_scheduler, set_as_default=False) as observer:
         busy = {address for address, tasks in observer.processing().items() if tasks}
         pids = observer.run(os.getpid)
         victim = next(iter(busy or pids))
@@ -302,8 +290,8 @@ def test_a_finished_job_expires(make_jobs_app, tmp_path, redis_client):
     assert not list(redis_client.scan_iter(match=f"*job:{job_id}"))
 
 
-def test_metadata_on_local_disk_without_redis(scheduler, tmp_path, contract_client_for):
-    app = create_app({"TESTING": True, "UVDOSE_DASK_SCHEDULER": scheduler, "UVDOSE_JOBS_STORE": str(tmp_path / "s"),
+def test_metadata_on_local_disk_without_redis(dask_scheduler, tmp_path, contract_client_for):
+    app = create_app({"TESTING": True, "UVDOSE_DASK_SCHEDULER": dask_scheduler, "UVDOSE_JOBS_STORE": str(tmp_path / "s"),
                       "UVDOSE_JOBS_METADATA_DIR": str(tmp_path / "m"), "UVDOSE_REQUEST_LOG": False,
                       "REDIS_URL": None})  # not the environment's Redis (CI sets REDIS_URL)
     client = contract_client_for(app)
@@ -337,14 +325,14 @@ def _served(scheduler, tmp_path, **settings) -> dict[str, str]:
             "UVDOSE_REQUEST_LOG": "off", **settings}
 
 
-def test_the_python_client_submits_waits_and_downloads(scheduler, tmp_path_factory, tmp_path):
+def test_the_python_client_submits_waits_and_downloads(dask_scheduler, tmp_path_factory, tmp_path):
     import httpx
     import pyarrow.parquet as pq
 
     from uvdose.client import Client, InvalidRecords
 
     body = {"records": irradiance_records(7)}
-    with running_gunicorn(tmp_path_factory, **_served(scheduler, tmp_path, UVDOSE_JOB_PART_WORK="3")) as base_url:
+    with running_gunicorn(tmp_path_factory, **_served(dask_scheduler, tmp_path, UVDOSE_JOB_PART_WORK="3")) as base_url:
         expected = httpx.post(base_url + "/v1/irradiance", json=body).json()["results"]
         with Client(base_url) as uv:
             job = uv.jobs.submit("/v1/irradiance", body)
@@ -361,7 +349,7 @@ def test_the_python_client_submits_waits_and_downloads(scheduler, tmp_path_facto
             assert [(e.index, e.field) for e in refused.value.errors] == [(0, "lat")]
 
 
-def test_a_job_finishes_after_its_api_server_is_restarted(scheduler, tmp_path_factory, tmp_path):
+def test_a_job_finishes_after_its_api_server_is_restarted(dask_scheduler, tmp_path_factory, tmp_path):
     # The server is killed (master and workers, SIGKILL: a lost host) as soon as the job
     # runs, so the scheduler drops its tasks at once; only the parts then on a worker land.
     # A new server on the same store finishes the job from its first look at it. (A
@@ -372,7 +360,7 @@ def test_a_job_finishes_after_its_api_server_is_restarted(scheduler, tmp_path_fa
     import httpx
 
     n_fields = 40
-    settings = _served(scheduler, tmp_path, UVDOSE_JOB_PART_WORK="365")
+    settings = _served(dask_scheduler, tmp_path, UVDOSE_JOB_PART_WORK="365")
     with running_gunicorn(tmp_path_factory, **settings) as base_url:
         job_id = httpx.post(base_url + "/v1/jobs/fields", json=_season_body(n_fields)).json()["id"]
         deadline = time.monotonic() + 60

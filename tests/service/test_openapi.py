@@ -145,9 +145,7 @@ def all_checks_schema():
     config = SchemathesisConfig.from_dict({
         "phases": {"coverage": {"enabled": False}}, "seed": 20261202,
         "headers": {"Accept-Encoding": "identity"}, **_DOCUMENTED_REFUSALS})
-    # The jobs operations are left to their own tests: each generated submission would start
-    # a job on the Dask cluster, and their record arrays are bounded by the body size, not by
-    # the request schemas' maxItems they share with the synchronous operations.
+    # The jobs operations have their own run below, on a Dask cluster.
     return schemathesis.openapi.from_wsgi("/openapi.yaml", app, config=config)
 
 
@@ -160,4 +158,32 @@ all_checks = schemathesis.pytest.from_fixture("all_checks_schema").exclude(path_
 def test_generated_requests_pass_every_schemathesis_check(case):
     # Every built-in check (as `schemathesis run --checks all`): valid data accepted,
     # invalid data refused, statuses, media types, headers and bodies as documented.
+    case.call_and_validate()
+
+
+@pytest.fixture
+def jobs_all_checks_schema(dask_scheduler, tmp_path):
+    from uvdose.service import jobs
+    from uvdose.service.app import create_app
+
+    app = create_app({"TESTING": True, "UVDOSE_CACHE": "off", "UVDOSE_DASK_SCHEDULER": dask_scheduler,
+                      "UVDOSE_JOBS_STORE": str(tmp_path / "store"), "REDIS_URL": None,
+                      "UVDOSE_JOBS_METADATA_DIR": str(tmp_path / "metadata"), "UVDOSE_REQUEST_LOG": False})
+    config = SchemathesisConfig.from_dict({
+        "phases": {"coverage": {"enabled": False}}, "seed": 20261203,
+        "headers": {"Accept-Encoding": "identity"}, **_DOCUMENTED_REFUSALS})
+    yield schemathesis.openapi.from_wsgi("/openapi.yaml", app, config=config)
+    app.extensions[jobs.EXTENSION].close()
+
+
+jobs_all_checks = schemathesis.pytest.from_fixture("jobs_all_checks_schema").include(path_regex="^/v1/jobs")
+
+
+@pytest.mark.slow
+@jobs_all_checks.parametrize()
+@settings(max_examples=30, deadline=None, suppress_health_check=list(HealthCheck))
+def test_generated_job_requests_pass_every_schemathesis_check(case):
+    # The same checks on the jobs operations, each accepted submission a real job on a real
+    # local Dask cluster: their bodies take any number of records (the ...ForJobs schemas),
+    # the status and results paths answer a job that is not known with a documented 404.
     case.call_and_validate()

@@ -289,6 +289,24 @@ def test_array_limits_are_the_service_limits(spec):
     assert {(curve[name]["minItems"], curve[name]["maxItems"]) for name in curve} == {(2, routes_doses.MAX_CURVE_POINTS)}
 
 
+def test_the_jobs_take_their_bodies_without_the_per_request_counts(spec):
+    # A job takes the synchronous endpoint's body with no per-request count; the body's size
+    # bounds it. Its request schemas are the synchronous ones with those counts lifted to
+    # that bound, derived (tests/service/job_request_schemas.py), never edited by hand.
+    from tests.service import job_request_schemas
+
+    schemas = spec["components"]["schemas"]
+    synchronous = {name: schema for name, schema in schemas.items() if not name.endswith(job_request_schemas.SUFFIX)}
+    derived = job_request_schemas.derived(synchronous)
+    in_file = {name: schema for name, schema in schemas.items() if name.endswith(job_request_schemas.SUFFIX)}
+    assert in_file == derived, "rerun: python -m tests.service.job_request_schemas"
+    counts, bound = job_request_schemas.limits()
+    assert not any(key == "maxItems" and value in counts for _, key, value in _walk(derived))
+    for operation in ("irradiance", "ozone", "windows", "fields", "routes"):
+        body = spec["paths"][f"/v1/jobs/{operation}"]["post"]["requestBody"]["content"]["application/json"]["schema"]
+        assert body["$ref"].endswith(job_request_schemas.SUFFIX) and body["$ref"].rsplit("/", 1)[1] in derived
+
+
 def test_the_columns_answer_names_every_spectrum(spec):
     from uvdose.models.action_spectra import ACTION_SPECTRA
 
