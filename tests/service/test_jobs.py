@@ -101,6 +101,26 @@ def test_every_operation_as_a_job_gives_the_synchronous_rows(make_jobs_app):
         assert same_rows(ndjson_rows(client.get(f"/v1/jobs/{job_id}/results")), expected["results"]), name
 
 
+def test_a_job_takes_more_records_than_one_request_may(make_jobs_app):
+    # 10 001 records: one more than a synchronous request may have (a 413), and valid under
+    # the job's own request schema where the synchronous schema's maxItems refuses it.
+    from openapi_schema_validator import OAS31Validator
+
+    body = {"records": [{"id": f"orchard-tree-{i}", "lat": 44.0 + 1e-4 * i, "lon": 4.9, "time": "2026-06-21T10:00:00Z"}
+                        for i in range(10_001)]}
+
+    def valid(name: str) -> bool:
+        return OAS31Validator({"$ref": f"#/components/schemas/{name}", "components": SPEC["components"]}).is_valid(body)
+
+    assert valid("IrradianceRequestForJobs") and not valid("IrradianceRequest")
+    app, client = make_jobs_app(UVDOSE_JOB_PART_WORK=5000)
+    assert client.post(SYNC_PATHS["irradiance"], json=body).status_code == 413
+    submitted = client.post("/v1/jobs/irradiance", json=body)
+    assert submitted.status_code == 202
+    status = wait_for(client, submitted.get_json()["id"], timeout_s=180)
+    assert (status["state"], status["records_done"], status["parts"]) == ("succeeded", 10_001, 3)
+
+
 def test_submit_poll_and_download_in_each_format(make_jobs_app):
     app, client = make_jobs_app()
     body = {"records": irradiance_records(8), "spectra": ["erythema", "plant_damage"]}
