@@ -83,7 +83,7 @@ from uvdose.service.wire_formats import (
     given_columns,
     load_options,
     negotiate,
-    read_batch,
+    read_endpoint_batch,
     read_json_object,
     row_columns,
     rows_from_columns,
@@ -169,9 +169,7 @@ def _exposure_rows(doses: Mapping[str, np.ndarray], final: Mapping[str, np.ndarr
 
 def _read_records(record_schema, options_schema):
     """(validated batch, options, layout of a whole JSON answer) of a JSON records/columns body."""
-    negotiate(request)
-    batch_request = read_batch(request, record_schema=record_schema, options_schema=options_schema,
-                               max_records=current_app.config["UVDOSE_MAX_RECORDS"])
+    _, batch_request = read_endpoint_batch(record_schema, options_schema)
     options = batch_request.options
     layout = options.get("answer_layout") or ("columns" if batch_request.layout == "columns" else "records")
     return batch_request.batch, options, layout

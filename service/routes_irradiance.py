@@ -7,11 +7,11 @@ or CSV.
 """
 from __future__ import annotations
 
-from flask import Blueprint, Response, current_app, request
+from flask import Blueprint, Response
 
 from uvdose.service import engine_gateway, irradiance_batch, metrics
 from uvdose.service.negotiation import JSON_MEDIA_TYPE, produces
-from uvdose.service.wire_formats import CSV_MEDIA_TYPE, csv_response, json_response, negotiate, read_batch
+from uvdose.service.wire_formats import CSV_MEDIA_TYPE, csv_response, json_response, read_endpoint_batch
 
 ROUTE = "/v1/irradiance"
 
@@ -24,9 +24,7 @@ _OPTIONS = irradiance_batch.IrradianceOptionsSchema()
 @blueprint.post(ROUTE)
 @produces(JSON_MEDIA_TYPE, CSV_MEDIA_TYPE)
 def irradiance() -> Response:
-    media_type = negotiate(request)
-    batch_request = read_batch(request, record_schema=_RECORDS, options_schema=_OPTIONS,
-                               max_records=current_app.config["UVDOSE_MAX_RECORDS"])
+    media_type, batch_request = read_endpoint_batch(_RECORDS, _OPTIONS)
     batch, options = batch_request.batch, batch_request.options
     spectra = options.get("spectra") or engine_gateway.default_spectra()
     columns, wavelength_nm, spectrum = irradiance_batch.compute(

@@ -16,7 +16,7 @@ from __future__ import annotations
 from typing import Any
 
 import numpy as np
-from flask import Blueprint, Response, current_app, g, request
+from flask import Blueprint, Response, g
 
 from uvdose.models import MODEL_VERSION
 from uvdose.service import engine_gateway, metrics
@@ -35,7 +35,7 @@ from uvdose.service.record_fields import (
     time_span,
 )
 from uvdose.service.time_text import iso_utc
-from uvdose.service.wire_formats import CSV_MEDIA_TYPE, csv_response, json_response, negotiate, read_batch, \
+from uvdose.service.wire_formats import CSV_MEDIA_TYPE, csv_response, json_response, read_endpoint_batch, \
     rows_from_columns
 
 blueprint = Blueprint("ozone", __name__)
@@ -75,9 +75,7 @@ _OPTIONS = OzoneOptionsSchema()
 @blueprint.post(ROUTE)
 @produces(JSON_MEDIA_TYPE, CSV_MEDIA_TYPE)
 def lookup_ozone() -> Response:
-    media_type = negotiate(request)
-    batch_request = read_batch(request, record_schema=_SCHEMA, options_schema=_OPTIONS,
-                               max_records=current_app.config["UVDOSE_MAX_RECORDS"])
+    media_type, batch_request = read_endpoint_batch(_SCHEMA, _OPTIONS)
     batch = batch_request.batch
     columns, ids = batch.columns, batch.ids
     g.uvdose_record_count = len(ids)

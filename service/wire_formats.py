@@ -103,6 +103,17 @@ def read_batch(
                             max_records=max_records)
 
 
+def read_endpoint_batch(record_schema: Schema, options_schema: Schema) -> tuple[str, BatchRequest]:
+    """(the answer's negotiated media type, the batch) of the batch endpoint's request being
+    served: negotiated first (a 406 before the body is read), then read and validated whole,
+    at most ``UVDOSE_MAX_RECORDS`` records."""
+    from flask import current_app, request
+
+    media_type = negotiate(request)
+    return media_type, read_batch(request, record_schema=record_schema, options_schema=options_schema,
+                                  max_records=current_app.config["UVDOSE_MAX_RECORDS"])
+
+
 def read_batch_bytes(
     data: bytes,
     mimetype: str,
