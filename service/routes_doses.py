@@ -755,7 +755,8 @@ def _read_routes(raw_routes: list) -> tuple[vehicle_routes.RoutePoints, dict[str
             errors.append(FieldError(field=flat.point_path(error.index, wire), reason=error.reason,
                                      index=route, id=_record_id(ids, route)))
         columns = point_batch.columns
-        errors += _overlong_routes(flat, columns["time_unix_s"], ids)
+        # No time column at all when no point is an object with a time (each is named above).
+        errors += _overlong_routes(flat, columns.get("time_unix_s", np.full(len(flat.points), np.nan)), ids)
     else:
         columns = {name: np.zeros(0) for name in ("time_unix_s", "latitude_deg", "longitude_deg")}
         columns.update(stop=np.zeros(0, bool), gap=np.zeros(0, bool))

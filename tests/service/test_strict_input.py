@@ -191,6 +191,17 @@ def test_a_two_point_route_over_two_centuries_is_refused_before_any_sample(clien
                                                       "last; it spans 31.0 days"}
 
 
+def test_routes_whose_points_are_not_objects_are_named_not_a_500(client):
+    # Found by schemathesis against a live gunicorn: when no point of any route is an
+    # object, there is no time column at all, and the span check read a missing column.
+    errors = _errors_of(client.post(ROUTES, json={"routes": [{"id": "van-9", "points": ["a", "b"]},
+                                                             {"id": "van-10", "points": ["", 3]}]}))
+    assert errors == {(0, "van-9", "routes[0].points[0]"): "must be an object",
+                      (0, "van-9", "routes[0].points[1]"): "must be an object",
+                      (1, "van-10", "routes[1].points[0]"): "must be an object",
+                      (1, "van-10", "routes[1].points[1]"): "must be an object"}
+
+
 @pytest.mark.parametrize("path, body, field", [
     (ROUTES, {"routes": [{"points": [dict(FIXES[0], time="1949-12-31T23:59:59Z"), FIXES[1]]}]},
      "routes[0].points[0].time"),
