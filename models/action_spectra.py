@@ -27,8 +27,7 @@ from pathlib import Path
 from typing import Callable, Sequence
 
 import numpy as np
-
-from uvdose.models.spectral_grid import UVA_BAND_NM, UVB_BAND_NM
+import yaml
 
 __all__ = [
     "ActionSpectrum",
@@ -142,9 +141,6 @@ def _plant_damage(wavelength_nm: np.ndarray) -> np.ndarray:
     return _green_plant_damage_raw(wavelength_nm) / _green_plant_damage_raw(np.array(300.0))
 
 
-_PLANT_GROWTH_LIMIT_NM = 390.0
-
-
 def _flint_caldwell_raw(wavelength_nm: np.ndarray) -> np.ndarray:
     # Flint & Caldwell (2003), appendix: exp{4.688272 exp[−exp(0.1703411(λ − 307.867)/1.15)]
     # + (390 − λ)/121.7557 − 4.183832}; 0.9878 at 300 nm as published.
@@ -202,140 +198,37 @@ def _band(wavelength_nm: np.ndarray) -> np.ndarray:
     return np.ones(np.shape(wavelength_nm))
 
 
-def _unweighted_band(name: str, band_nm: tuple[float, float],
-                     reference_levels: tuple[ReferenceLevel, ...] = ()) -> ActionSpectrum:
-    """A band spectrum: weight 1 inside the CIE band limits, 0 outside."""
-    low, high = band_nm
-    label = name.upper()
+# --- the registry: models/data/action_spectra.yaml ----------------------------------
+
+_ANALYTIC: dict[str, Callable[[np.ndarray], np.ndarray]] = {
+    "cie_erythema": _erythema_cie,
+    "green_plant_damage": _plant_damage,
+    "flint_caldwell_growth": _plant_growth,
+    "setlow_green_miller_dna": _dna_damage,
+}
+"""The closed forms the registry's analytic spectra name."""
+
+
+def _spectrum(entry: dict) -> ActionSpectrum:
+    """One entry of the registry file as an :class:`ActionSpectrum`."""
+    kind = entry["kind"]
+    if kind == "band":
+        function = _band
+    elif kind == "tabulated":
+        function = _log_linear(entry["table"])
+    else:
+        function = _ANALYTIC[entry["function"]]
+    optional = {"units": entry["units"]} if "units" in entry else {}
     return ActionSpectrum(
-        name=name,
-        title=f"{label}, unweighted {low:g}–{high:g} nm",
-        source=f"CIE band limits (CIE S 017:2020 ILV, {label[:2]}-{label[2:]} "
-               f"{low:g}-{high:g} nm)",
-        normalisation_nm=low,
-        kind="band",
-        description=f"Unweighted irradiance in the {label} band, {low:g}–{high:g} nm.",
-        defined_nm=band_nm,
-        _function=_band,
-        reference_levels=reference_levels,
-    )
+        name=entry["name"], title=entry["title"], source=entry["source"],
+        normalisation_nm=float(entry["normalisation_nm"]), kind=kind, description=entry["description"],
+        defined_nm=tuple(float(x) for x in entry["defined_nm"]), _function=function,
+        reference_levels=tuple(ReferenceLevel(**level) for level in entry.get("reference_levels", ())),
+        **optional)
 
 
-# --- the registry -----------------------------------------------------------------
-
-_CIE_ERYTHEMA = ("CIE S 007/E:1998 Erythema reference action spectrum and standard erythema "
-                 "dose (= ISO 17166:1999), after McKinlay A.F. & Diffey B.L. (1987), CIE "
-                 "Journal 6:17-22")
-_ICNIRP_2004 = ("International Commission on Non-Ionizing Radiation Protection (2004). "
-                "ICNIRP guidelines on limits of exposure to ultraviolet radiation of "
-                "wavelengths between 180 nm and 400 nm (incoherent optical radiation). "
-                "Health Physics 87(2):171-186")
-_WHO_2002 = ("WHO, WMO, UNEP, ICNIRP (2002). Global Solar UV Index: A Practical Guide. "
-             "World Health Organization, Geneva")
-
-_SPECTRA = (
-    ActionSpectrum(
-        name="erythema",
-        title="Erythema (sunburn) reference action spectrum",
-        source=_CIE_ERYTHEMA,
-        normalisation_nm=298.0,
-        kind="analytic",
-        description="Erythemally weighted irradiance, the basis of the UV Index and of "
-                    "sunburn doses in SED.",
-        defined_nm=(250.0, 400.0),
-        _function=_erythema_cie,
-        reference_levels=(
-            ReferenceLevel("standard erythema dose (SED)", 100.0, "J m-2 effective",
-                           "1 SED = 100 J m-2 erythemally weighted", _CIE_ERYTHEMA),
-            ReferenceLevel("UV Index per erythemal irradiance", 40.0, "m2 W-1",
-                           "UVI = 40 m2 W-1 x erythemal irradiance; UVI 1 = 25 mW m-2",
-                           _WHO_2002),
-        ),
-    ),
-    ActionSpectrum(
-        name="actinic_icnirp",
-        title="Actinic UV hazard to skin and eye, S(λ)",
-        source=_ICNIRP_2004 + ". Table values transcribed from memory; see "
-               "models/data/action_spectrum_icnirp_2004.csv",
-        normalisation_nm=270.0,
-        kind="tabulated",
-        description="Effective irradiance for occupational exposure limits to ultraviolet "
-                    "radiation (photokeratitis, conjunctivitis, erythema).",
-        defined_nm=(270.0, 400.0),
-        _function=_log_linear("action_spectrum_icnirp_2004.csv"),
-        reference_levels=(
-            ReferenceLevel("exposure limit, skin and eye", 30.0, "J m-2 effective",
-                           "per 8 h working day, unprotected skin and eye, S(λ)-weighted; "
-                           "local occupational rules take precedence", _ICNIRP_2004),
-        ),
-    ),
-    ActionSpectrum(
-        name="plant_damage",
-        title="Generalised plant damage (Caldwell)",
-        source=("Caldwell M.M. (1971). Solar UV irradiation and the growth and development "
-                "of higher plants. In: Giese A.C. (ed.) Photophysiology 6:131-177, Academic "
-                "Press; analytic form of Green A.E.S., Sawada T. & Shettle E.P. (1974). The "
-                "middle ultraviolet reaching the ground. Photochemistry and Photobiology "
-                "19:251-259"),
-        normalisation_nm=300.0,
-        kind="analytic",
-        description="Generalised UV-B damage to higher plants; zero at and above 313.3 nm.",
-        defined_nm=(280.0, 400.0),
-        _function=_plant_damage,
-    ),
-    ActionSpectrum(
-        name="plant_growth",
-        title="Plant growth inhibition (Flint & Caldwell)",
-        source=("Flint S.D. & Caldwell M.M. (2003). A biological spectral weighting function "
-                "for ozone depletion research with higher plants. Physiologia Plantarum "
-                "117:137-144 (analytic fit of the appendix; responses measured up to 366 nm, no "
-                "long-wave end given). Applied up to 390 nm; the effect of that limit against "
-                "366 nm: Micheletti M.I., Piacentini R.D. & Madronich S. (2003). Sensitivity of biologically active UV radiation to stratospheric "
-                "ozone changes: effects of action spectrum shape and wavelength range. "
-                "Photochemistry and Photobiology 78:456-461"),
-        normalisation_nm=300.0,
-        kind="analytic",
-        description="Growth inhibition of higher plants in UV-B and UV-A; applied up to 390 nm.",
-        defined_nm=(280.0, _PLANT_GROWTH_LIMIT_NM),
-        _function=_plant_growth,
-    ),
-    ActionSpectrum(
-        name="dna_damage",
-        title="DNA damage (Setlow)",
-        source=("Setlow R.B. (1974). The wavelengths in sunlight effective in producing skin "
-                "cancer: a theoretical analysis. Proc. Natl. Acad. Sci. USA 71:3363-3366; "
-                "analytic form of Green A.E.S. & Miller J.H. (1975). Measures of "
-                "biologically active radiation in the 280-340 nm region. CIAP Monograph 5, "
-                "Part 1, ch. 2.2.4, US Department of Transportation"),
-        normalisation_nm=300.0,
-        kind="analytic",
-        description="Relative DNA damage (naked DNA); normalised at 300 nm; zero above "
-                    "340 nm, the upper end of the fitted range.",
-        defined_nm=(280.0, 340.0),
-        _function=_dna_damage,
-    ),
-    ActionSpectrum(
-        name="previtamin_d3",
-        title="Previtamin D3 production in human skin",
-        source=("CIE 174:2006 Action spectrum for the production of previtamin D3 in human "
-                "skin, after MacLaughlin J.A., Anderson R.R. & Holick M.F. (1982), Science "
-                "216:1001-1003. APPROXIMATE values from memory, not the standard's table; "
-                "see models/data/action_spectrum_cie_174.csv"),
-        normalisation_nm=298.0,
-        kind="tabulated",
-        description="Indicative previtamin-D3-weighted irradiance; zero above 330 nm. "
-                    "Not a measure of vitamin D status.",
-        defined_nm=(255.0, 330.0),
-        _function=_log_linear("action_spectrum_cie_174.csv"),
-    ),
-    _unweighted_band("uvb", UVB_BAND_NM),
-    _unweighted_band("uva", UVA_BAND_NM, reference_levels=(
-        ReferenceLevel("UVA limit for the unprotected eye", 10_000.0, "J m-2",
-                       "radiant exposure 315-400 nm for exposures under 1000 s; "
-                       "10 W m-2 for longer ones (from memory); local occupational "
-                       "rules take precedence", _ICNIRP_2004),
-    )),
-)
+_SPECTRA = tuple(_spectrum(entry) for entry in
+                 yaml.safe_load((_DATA_DIR / "action_spectra.yaml").read_text(encoding="utf-8")))
 
 ACTION_SPECTRA: dict[str, ActionSpectrum] = {spectrum.name: spectrum for spectrum in _SPECTRA}
 """Action spectra by name."""

@@ -1,6 +1,7 @@
-"""Every setting of the service, in one list, and the one place they are parsed.
+"""Every setting of the service, in one table, and the one place they are parsed.
 
-:data:`SETTINGS` are the app's: :func:`settings_from_environment` reads them from the
+The table is ``service/settings.yaml`` (variable, config key, default, parser, meaning);
+the parsers are here. :data:`SETTINGS` are the app's: :func:`settings_from_environment` reads them from the
 environment (and from the ``config`` given to ``create_app``, under the same keys) into
 ``app.config``, where the parts that use them read them (limits, cache, ozone grids, API
 keys, request log). :data:`SERVER_SETTINGS` are the server's: ``deploy/gunicorn.conf.py``
@@ -13,7 +14,7 @@ all. A variable set to the empty string counts as unset. A value that cannot be 
 raises :class:`ConfigurationError` naming the variable, so a misconfigured container
 fails at start rather than serving with a guess.
 
-The list is a plain table rather than Flask's ``from_prefixed_env`` (which reads values
+The table is plain data rather than Flask's ``from_prefixed_env`` (which reads values
 as JSON and checks nothing, and would miss ``REDIS_URL`` and ``PROMETHEUS_MULTIPROC_DIR``)
 or a settings library (one more dependency for the same table and the same checks).
 """
@@ -21,7 +22,10 @@ from __future__ import annotations
 
 import os
 from dataclasses import dataclass
+from pathlib import Path
 from typing import Any, Callable, Mapping
+
+import yaml
 
 
 class ConfigurationError(ValueError):
@@ -100,130 +104,24 @@ def _log_level(text: str) -> str:
     return upper
 
 
-def _same(env: str, default: Any, parse: Callable[[str], Any], help: str) -> Setting:
-    """A setting whose config key is its variable's name."""
-    return Setting(env, env, default, parse, help)
+_PARSERS: dict[str, Callable[[str], Any]] = {
+    "positive_number": _positive_number, "switch": _switch, "text": _text,
+    "cache_backend": _cache_backend, "log_level": _log_level,
+}
 
 
-SETTINGS: tuple[Setting, ...] = (
-    # Requests
-    _same("UVDOSE_MAX_RECORDS", 10_000, _whole_number(1),
-          "Most records accepted in one request; larger batches get a 413 problem."),
-    _same("UVDOSE_MAX_FULL_SOLVE_RECORDS", 1_000, _whole_number(1),
-          "Most records (after the cache, and counting dose samples) one request may send to "
-          "the full radiative-transfer solve, about 100 records/s per core; more get a 413 problem."),
-    _same("UVDOSE_MAX_WEATHER_READINGS", 200_000, _whole_number(1),
-          "Most weather-series readings (the `weather` table of a field or window dose request) "
-          "in one request; more get a 413 problem."),
-    _same("UVDOSE_MAX_ROUTE_POINTS", 500_000, _whole_number(2),
-          "Most route points (fixes) in one routes request, all routes together; more get a 413 problem."),
-    _same("UVDOSE_MAX_SAMPLE_SPECTRA", 6_000_000, _whole_number(1),
-          "Most work one dose request may imply, in engine samples × action spectra (about 25 s "
-          "on one core); more get a 413 problem pointing to the jobs API."),
-    _same("UVDOSE_CHUNK_SAMPLE_SPECTRA", 250_000, _whole_number(1),
-          "Dose requests are computed in chunks of records of at most this much work (samples × "
-          "spectra), which bounds a worker's memory; one record implying more gets a 413 problem."),
-    _same("UVDOSE_MAX_ANSWER_BYTES", 32 * 1024 * 1024, _whole_number(1),
-          "Largest whole JSON dose answer, estimated before any work; larger get a 413 problem "
-          "(stream it as NDJSON or CSV, or submit a job)."),
-    _same("UVDOSE_MAX_STREAMED_ANSWER_BYTES", 256 * 1024 * 1024, _whole_number(1),
-          "Largest streamed (NDJSON or CSV) dose answer, estimated before any work; larger get a "
-          "413 problem pointing to the jobs API."),
-    Setting("UVDOSE_MAX_BODY_BYTES", "MAX_CONTENT_LENGTH", 16 * 1024 * 1024, _whole_number(1),
-            "Largest request body in bytes; larger bodies get a 413 problem."),
-    _same("UVDOSE_REQUEST_DEADLINE_S", 60.0, _positive_number,
-          "Seconds one request may compute; past it (checked between parts of the batch) the "
-          "answer is a 503 problem with Retry-After, logged."),
-    _same("UVDOSE_CORS_ORIGINS", None, _text,
-          "Origins (scheme://host[:port], comma-separated, or *) whose pages may call the API "
-          "from a browser; unset means no CORS headers (only the service's own origin)."),
-    _same("UVDOSE_MAX_ERRORS_LISTED", 10_000, _whole_number(1),
-          "Most record errors listed in one 422 problem (the count of all errors is always given)."),
-    _same("UVDOSE_OPENAPI_PATH", None, _text,
-          "Path of the OpenAPI document served at /openapi.yaml (default: the packaged one)."),
-    _same("UVDOSE_HANDLE_ERRORS_AS_PROBLEMS", True, _switch,
-          "Turn unexpected exceptions into a 500 problem (switch off only to debug)."),
-    _same("UVDOSE_COMPRESS_MIN_BYTES", 1024, _whole_number(0),
-          "Smallest answer body sent gzip- or zstd-coded when the client's Accept-Encoding asks for it."),
-    # Total ozone
-    _same("UVDOSE_OZONE_GRIDS", None, _text,
-          "Operator total-ozone grid files, comma-separated, tried in order before the climatology."),
-    # Physics-state cache
-    _same("UVDOSE_CACHE", "auto", _cache_backend,
-          "Cache backend; auto is redis when REDIS_URL is set, else memory (in-process, per worker)."),
-    _same("REDIS_URL", None, _text,
-          "Redis for the physics-state cache; unset means the in-process cache."),
-    _same("UVDOSE_CACHE_TTL_S", 86_400.0, _positive_number,
-          "Lifetime of a cache entry in seconds (both backends)."),
-    _same("UVDOSE_CACHE_MAX_ENTRIES", 50_000, _whole_number(1),
-          "Bound of the in-process cache, entries per worker."),
-    _same("UVDOSE_CACHE_PREFIX", "uvdose:", _text,
-          "Prefix of every cache key, to share one Redis between deployments."),
-    _same("UVDOSE_CACHE_MAX_WRITES", 10_000, _whole_number(0),
-          "Most new cache entries one request writes (those most of its records use first); "
-          "the rest it answers without storing."),
-    _same("UVDOSE_REDIS_CONNECT_TIMEOUT_S", 0.25, _positive_number,
-          "Connect timeout of every Redis call, seconds."),
-    _same("UVDOSE_REDIS_TIMEOUT_S", 0.5, _positive_number,
-          "Read timeout of every Redis call, seconds."),
-    _same("UVDOSE_CACHE_RETRY_S", 1.0, _positive_number,
-          "After a Redis fault, seconds before Redis is tried again."),
-    _same("UVDOSE_CACHE_RETRY_MAX_S", 30.0, _positive_number,
-          "The wait after repeated Redis faults doubles up to this many seconds."),
-    # API keys
-    _same("UVDOSE_API_KEYS", None, _text,
-          "Comma-separated API keys; unset (and no key file) means authentication is off."),
-    _same("UVDOSE_API_KEYS_FILE", None, _text,
-          "File of API keys or their SHA-256 digests, one per line."),
-    # Jobs (POST /v1/jobs) on Dask distributed
-    _same("UVDOSE_DASK_SCHEDULER", None, _text,
-          "Address of an existing Dask scheduler (tcp://host:8786) that runs the jobs; unset means "
-          "an embedded local cluster on this machine's cores, started by the service itself."),
-    _same("UVDOSE_DASK_WORKERS", None, _whole_number(1),
-          "Worker processes of the embedded local cluster (default: one per core)."),
-    _same("UVDOSE_JOBS_STORE", None, _text,
-          "Results store of the jobs, a directory or any fsspec URL (s3://bucket/prefix) every API "
-          "instance and Dask worker can reach (default: uvdose-jobs in the system's temporary directory)."),
-    _same("UVDOSE_JOBS_METADATA_DIR", None, _text,
-          "Directory of the job metadata when REDIS_URL is unset (with it, the metadata is kept in Redis; "
-          "default: uvdose-jobs-metadata in the system's temporary directory)."),
-    _same("UVDOSE_JOB_PART_WORK", 20_000, _whole_number(1),
-          "Work per part of a job (records; field-days for fields; route points for routes): one part is "
-          "one Dask task and one downloadable piece of the result."),
-    _same("UVDOSE_JOB_TTL_S", 604_800.0, _positive_number,
-          "Seconds a finished (or cancelled) job and its results are kept before they expire (default 7 days)."),
-    # Logs and metrics
-    _same("UVDOSE_REQUEST_LOG", True, _switch,
-          "One JSON line per request on stdout."),
-    _same("UVDOSE_LOG_LEVEL", "INFO", _log_level,
-          "Level of the service's and gunicorn's logs."),
-    _same("PROMETHEUS_MULTIPROC_DIR", None, _text,
-          "Directory shared by gunicorn workers for Prometheus metrics (prometheus_client "
-          "reads it itself; uvdose serve and the gunicorn config make a fresh one when unset)."),
-)
+def _setting(entry: Mapping[str, Any]) -> Setting:
+    """One entry of service/settings.yaml as a :class:`Setting`."""
+    parse = _whole_number(entry["minimum"]) if entry["parse"] == "whole_number" else _PARSERS[entry["parse"]]
+    return Setting(entry["env"], entry.get("key", entry["env"]), entry["default"], parse, entry["help"])
+
+
+_TABLE = yaml.safe_load((Path(__file__).parent / "settings.yaml").read_text(encoding="utf-8"))
+
+SETTINGS: tuple[Setting, ...] = tuple(_setting(entry) for entry in _TABLE["app"])
 """The app's settings, read into ``app.config``."""
 
-SERVER_SETTINGS: tuple[Setting, ...] = (
-    _same("UVDOSE_BIND", "127.0.0.1:8080", _text, "Address gunicorn listens on (host:port)."),
-    _same("UVDOSE_WORKERS", 2, _whole_number(1), "Worker processes, about one per CPU the container may use."),
-    _same("UVDOSE_THREADS", 4, _whole_number(1), "Threads per worker."),
-    _same("UVDOSE_WORKER_TIMEOUT", 120, _whole_number(1),
-          "Seconds a worker's main loop may go silent before the master restarts it (a hung "
-          "process, not a long request: UVDOSE_REQUEST_DEADLINE_S bounds those)."),
-    _same("UVDOSE_HEADER_TIMEOUT_S", 10.0, _positive_number,
-          "Seconds a client has, from its request's first byte, to send the request line and "
-          "headers; then a 408 problem and the connection is closed (logged)."),
-    _same("UVDOSE_BODY_TIMEOUT_S", 60.0, _positive_number,
-          "Seconds a client has, after the headers, to send the whole body (then a 408 problem "
-          "and the connection is closed, logged); also the longest an answer may make no progress "
-          "because the client stopped reading (then it is cut, logged)."),
-    _same("UVDOSE_GRACEFUL_TIMEOUT", 30, _whole_number(1),
-          "Seconds in-flight requests get to finish after SIGTERM."),
-    _same("UVDOSE_KEEPALIVE", 5, _whole_number(0), "Seconds an idle keep-alive connection stays open."),
-    _same("UVDOSE_MAX_REQUESTS", 0, _whole_number(0),
-          "Recycle a worker after this many requests (0: never; jitter 10 %)."),
-    _same("UVDOSE_PRELOAD", True, _switch, "Load the app in the master before the workers fork."),
-)
+SERVER_SETTINGS: tuple[Setting, ...] = tuple(_setting(entry) for entry in _TABLE["server"])
 """The server's settings, read by ``deploy/gunicorn.conf.py`` and ``uvdose serve``
 (with ``UVDOSE_LOG_LEVEL`` of :data:`SETTINGS`)."""
 

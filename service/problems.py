@@ -13,8 +13,10 @@ import json
 import logging
 from contextlib import contextmanager
 from dataclasses import dataclass, field
+from pathlib import Path
 from typing import Any, Callable, Iterator, Sequence
 
+import yaml
 from flask import Flask, Response
 from werkzeug.exceptions import HTTPException
 
@@ -59,91 +61,14 @@ class ProblemType:
         return TYPE_PREFIX + self.slug if self.slug != "about:blank" else "about:blank"
 
 
-PROBLEM_TYPES: tuple[ProblemType, ...] = (
-    ProblemType("invalid-records", 422, "The batch has invalid records",
-                "One or more records have errors (errors in request-wide options found at the same "
-                "time are listed too). Nothing was computed.",
-                "Fix every entry of `errors`: each names the record's `index` and `id`, the `field` "
-                "(inside routes and the `daily` table, the value's path in the body) and the `reason`."),
-    ProblemType("invalid-options", 422, "The request options are invalid",
-                "Only the request's envelope or its options are wrong (a misspelt option, a query "
-                "option sent with a JSON body, a season that ends before it starts).",
-                "Fix the options named in `errors` (their `index` is null)."),
-    ProblemType("malformed-body", 400, "The request body cannot be read",
-                "The body is not valid JSON or CSV, or not the object the endpoint takes.",
-                "Check the body's syntax and encoding (UTF-8)."),
-    ProblemType("too-many-records", 413, "Too many records in one request",
-                "More records (or route points) than one request may carry; `max_records` says how "
-                "many.", "Split the batch into several requests."),
-    ProblemType("too-many-full-solve-records", 413, "Too many records for the full solve",
-                "More records or dose samples fall outside the precomputed tables (an aerosol thicker "
-                "than a spectral optical depth of 3, with a single scattering albedo below 0.5 or an "
-                "asymmetry factor outside 0.3-0.9) than one request may "
-                "send to the full radiative-transfer solve; `max_full_solve_records` says how many.",
-                "Split the batch, or leave the aerosol type at its default."),
-    ProblemType("body-too-large", 413, "The request body is too large",
-                "The body has more bytes than `UVDOSE_MAX_BODY_BYTES`, as sent or once decoded from "
-                "its `Content-Encoding`, whatever its framing (`Content-Length` or chunked); "
-                "`body_bytes` says how many were counted (`body_bytes_exact` false: at least that "
-                "many), `max_body_bytes` the limit. Nothing was computed.",
-                "Split the batch into several requests."),
-    ProblemType("incomplete-body", 400, "The request body is incomplete",
-                "The body ended before its `Content-Length`, its chunked framing broke off, its "
-                "gzip or zstd stream was cut, or it stopped arriving. Nothing was computed.",
-                "Send the whole body again."),
-    ProblemType("unsupported-content-encoding", 415, "Unsupported Content-Encoding",
-                "The body's `Content-Encoding` is not one the service decodes (`Accept-Encoding` "
-                "in the answer lists gzip and zstd).",
-                "Send the body uncoded, or gzip- or zstd-coded."),
-    ProblemType("request-timeout", 408, "Request Timeout",
-                "The request's headers or body did not arrive within `UVDOSE_HEADER_TIMEOUT_S` / "
-                "`UVDOSE_BODY_TIMEOUT_S`; the server closed the connection (logged).",
-                "Send the request at once, or split a large body over several requests."),
-    ProblemType("deadline-exceeded", 503, "The request took too long",
-                "Computing the answer would have outlasted `UVDOSE_REQUEST_DEADLINE_S` "
-                "(`deadline_s`); the work stopped between two parts of the batch and nothing is "
-                "answered but this problem (logged). `Retry-After` says when to try again.",
-                "Retry later, or split the batch (smaller requests finish within the deadline)."),
-    ProblemType("too-much-work", 413, "The request implies more work than one request may do",
-                "A dose request implies more engine samples × action spectra than one synchronous "
-                "request may do (`quantity` `sample_spectra`), or one record more than one chunk "
-                "computes at once (`record_sample_spectra`, with its `index` and `id`); `asked`, "
-                "`limit` and `setting` say how much. Counted from the request: nothing was computed.",
-                "Submit the same body as a job (at `jobs`, `/v1/jobs/<operation>`), split the request, or ask for "
-                "less (fewer spectra, a longer `step_s`, shorter windows or seasons)."),
-    ProblemType("answer-too-large", 413, "The answer would be larger than one request may give",
-                "The answer's estimated size (`asked`, bytes) is over the limit for a whole JSON "
-                "answer or for a streamed one (`limit`, `setting`). Estimated from the request: "
-                "nothing was computed.",
-                "Ask for the answer streamed (`Accept: application/x-ndjson` or `text/csv`), submit "
-                "a job (`jobs`), or split the request."),
-    ProblemType("unsupported-media-type", 415, "Unsupported Media Type",
-                "The body is neither `application/json` nor `text/csv` (where the endpoint takes CSV).",
-                "Send the body with one of the media types the operation lists."),
-    ProblemType("not-acceptable", 406, "Not Acceptable",
-                "None of the media types in the `Accept` header can be produced by this operation.",
-                "Ask for one of the media types the operation's 200 answer lists."),
-    ProblemType("unauthorized", 401, "Unauthorized",
-                "This deployment requires an API key and the request sent none, or one it does not "
-                "accept (`WWW-Authenticate` names the Bearer scheme).",
-                "Send the key as `X-API-Key: <key>` or `Authorization: Bearer <key>`."),
-    ProblemType("job-not-found", 404, "No such job",
-                "The job (or the part of it) named in the path is not known here: it was never "
-                "submitted, or it finished more than `UVDOSE_JOB_TTL_S` seconds ago and has expired.",
-                "Check the job's id; submit the batch again if it has expired."),
-    ProblemType("job-not-ready", 409, "The job's results are not ready",
-                "The whole result is asked for before the job has succeeded, or a part before it is "
-                "written (or the job was cancelled or failed).",
-                "Poll `GET /v1/jobs/{job_id}` until `state` is `succeeded`, or fetch the parts listed in "
-                "`parts_done`."),
-    ProblemType("about:blank", 0, "the HTTP reason phrase",
-                "Plain HTTP errors: an unknown path (404), a method the path does not take (405, with "
-                "`Allow`), a body over the size limit (413), an unexpected failure (500, logged, no "
-                "internals in the body).",
-                "Follow the status; for a 500, retry later and report it with the `X-Request-ID`."),
-)
-"""Every problem ``type`` the service answers with (``tests/service/test_docs.py`` holds the
-code and openapi.yaml to this list)."""
+def _problem_types() -> tuple[ProblemType, ...]:
+    entries = yaml.safe_load((Path(__file__).parent / "problem_types.yaml").read_text(encoding="utf-8"))
+    return tuple(ProblemType(**entry) for entry in entries)
+
+
+PROBLEM_TYPES: tuple[ProblemType, ...] = _problem_types()
+"""Every problem ``type`` the service answers with, from ``service/problem_types.yaml``
+(``tests/service/test_docs.py`` holds the code and openapi.yaml to that list)."""
 
 
 @dataclass
