@@ -55,14 +55,19 @@ def start_embedded_in_background(n_workers: int | None = None) -> tuple[subproce
     return process, f"tcp://127.0.0.1:{port}"
 
 
-def stop_embedded(process: subprocess.Popen) -> None:
+def stop_process(process: subprocess.Popen, grace_s: float = 10.0) -> None:
+    """Stop a child process: SIGTERM, then SIGKILL if it is still running after ``grace_s``."""
     if process.poll() is None:
         process.terminate()
         try:
-            process.wait(timeout=10)
+            process.wait(timeout=grace_s)
         except subprocess.TimeoutExpired:
             process.kill()
             process.wait()
+
+
+def stop_embedded(process: subprocess.Popen) -> None:
+    stop_process(process)
 
 
 def embedded_address(n_workers: int | None = None) -> str:

@@ -106,9 +106,9 @@ def _query_value(text: str, kind: str) -> Any:
     return text
 
 
-def _read_query(place_schema, options_schema) -> tuple[dict[str, np.ndarray], Any, dict[str, Any]]:
-    """(validated place columns (1,), its id, options) from the query string; a 422
-    problem naming each bad or unknown parameter otherwise."""
+def _read_query(place_schema, options_schema) -> tuple[str, dict[str, np.ndarray], Any, dict[str, Any]]:
+    """(the negotiated media type, validated place columns (1,), its id, options) from the
+    query string; a 422 problem naming each bad or unknown parameter otherwise."""
     # An empty parameter is not given (as an HTML form sends the fields left blank).
     query: Mapping[str, str] = {name: value for name, value in request.args.items() if value != ""}
     kinds = {rule.wire: rule.kind for rule in column_rules(place_schema)}
@@ -122,7 +122,7 @@ def _read_query(place_schema, options_schema) -> tuple[dict[str, np.ndarray], An
     errors += option_errors
     if errors:
         raise invalid_records(errors, 0)
-    return batch.columns, batch.ids[0], options
+    return chosen_media_type(), batch.columns, batch.ids[0], options
 
 
 def _offset_seconds(text: str) -> float:
@@ -144,8 +144,7 @@ def _label(record_id: Any, columns: Mapping[str, np.ndarray]) -> str:
 @blueprint.get(UV_DAY_ROUTE)
 @produces(SVG_MEDIA_TYPE, JSON_MEDIA_TYPE)
 def uv_index_day() -> Response:
-    media_type = chosen_media_type()
-    place, record_id, options = _read_query(_UV_PLACE, _UV_OPTIONS)
+    media_type, place, record_id, options = _read_query(_UV_PLACE, _UV_OPTIONS)
     offset_s = _offset_seconds(options["utc_offset"])
     step_s = 60.0 * int(options["step_min"])
     midnight = options["date"] - offset_s
@@ -195,8 +194,7 @@ def _short(label: str) -> str:
 @blueprint.get(SEASON_ROUTE)
 @produces(SVG_MEDIA_TYPE, JSON_MEDIA_TYPE)
 def field_season() -> Response:
-    media_type = chosen_media_type()
-    place, record_id, options = _read_query(_SEASON_FIELD, _SEASON_OPTIONS)
+    media_type, place, record_id, options = _read_query(_SEASON_FIELD, _SEASON_OPTIONS)
     first, last = options["first_day"], options["last_day"]
     n_days = int(round((last - first) / _DAY_S)) + 1
     if not 1 <= n_days <= MAX_SEASON_DAYS:

@@ -16,14 +16,13 @@ The machine is shared: read the ratios; the absolute figures move with the load.
 """
 from __future__ import annotations
 
-import argparse
 import json
 import sys
 from pathlib import Path
 
 import numpy as np
 import orjson
-from timing import best_of  # noqa: E402  (this folder; see timing.py)
+from timing import best_of, whole_number_options  # noqa: E402  (this folder; see timing.py)
 
 REPO = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(REPO))
@@ -37,10 +36,7 @@ def fleet_body(points: int) -> bytes:
 
 
 def main() -> None:
-    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--points", type=int, default=190_000)
-    parser.add_argument("--repeats", type=int, default=5)
-    args = parser.parse_args()
+    args = whole_number_options(__doc__, points=190_000, repeats=5)
     from uvdose.service import json_body
 
     body = fleet_body(args.points)

@@ -24,13 +24,12 @@ The machine is shared: read the ratios; the absolute figures move with the load.
 """
 from __future__ import annotations
 
-import argparse
 import sys
 from pathlib import Path
 
 import numpy as np
 import orjson
-from timing import best_of  # noqa: E402  (this folder; see timing.py)
+from timing import best_of, whole_number_options  # noqa: E402  (this folder; see timing.py)
 
 REPO = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(REPO))
@@ -82,10 +81,7 @@ def rows_pandas(columns: dict[str, list]) -> list[dict]:
 
 
 def main() -> None:
-    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--rows", type=int, default=10_000)
-    parser.add_argument("--repeats", type=int, default=15)
-    args = parser.parse_args()
+    args = whole_number_options(__doc__, rows=10_000, repeats=15)
 
     from uvdose.service.wire_formats import rows_from_columns
 

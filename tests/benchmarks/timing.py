@@ -5,6 +5,7 @@ The scripts run as ``python tests/benchmarks/bench_<name>.py``, so this folder i
 """
 from __future__ import annotations
 
+import argparse
 import time
 from typing import Callable
 
@@ -24,3 +25,12 @@ def timings(repeats: int, call: Callable[[], object], warmup: bool = False) -> l
 def best_of(repeats: int, call: Callable[[], object], warmup: bool = False) -> float:
     """The fastest of ``repeats`` timed calls, seconds: the least disturbed by other load."""
     return min(timings(repeats, call, warmup))
+
+
+def whole_number_options(doc: str, **defaults: int) -> argparse.Namespace:
+    """The command line of a benchmark whose options are whole numbers (``--rows 10000``),
+    each named and defaulted by ``defaults``; ``doc``'s first line describes the script."""
+    parser = argparse.ArgumentParser(description=doc.splitlines()[0])
+    for name, default in defaults.items():
+        parser.add_argument(f"--{name.replace('_', '-')}", type=int, default=default)
+    return parser.parse_args()

@@ -85,39 +85,34 @@ def test_tropics_250_to_300_du_with_little_season():
         assert 250.0 <= OZONE[:, band(lat)].mean() <= 280.0
 
 
-@pytest.mark.parametrize("latitude", [45.0, 55.0, 65.0, 75.0, 85.0])
-def test_northern_spring_maximum_and_autumn_minimum(latitude):
-    # Northern mid and high latitudes: maximum in late winter-spring (March-April at
-    # high latitudes), minimum in autumn (September-October); spring minus autumn of
-    # order 60-130 DU (WMO 2018 assessment, from memory; Parson's FAQ table: Arosa
-    # April 375 vs October 280, St. Petersburg 425 vs 300). Accept: the highest month
-    # in February-May, the lowest in August-November, March-April minus September-
-    # October above 50 DU.
+# The seasonal cycle, each hemisphere's local spring above its autumn:
+# - Northern mid and high latitudes: maximum in late winter-spring (March-April at high
+#   latitudes), minimum in autumn (September-October); spring minus autumn of order
+#   60-130 DU (WMO 2018 assessment, from memory; Parson's FAQ table: Arosa April 375 vs
+#   October 280, St. Petersburg 425 vs 300). Accepted: the highest month in February-May,
+#   the lowest in August-November, March-April minus September-October above 50 DU.
+# - Southern mid-latitudes: maximum in their spring, September-November, lowest in late
+#   summer-autumn, February-April (WMO 2018 assessment, from memory; Parson's FAQ table:
+#   Aspendale 38 S October 360 vs April 280 DU). Accepted: the highest month in
+#   August-November, the lowest in January-April, spring above autumn by 40 DU.
+NORTH = dict(highest=("feb", "may"), lowest=("aug", "nov"), spring=("mar", "apr"), autumn=("sep", "oct"), above_du=50.0)
+SOUTH = dict(highest=("aug", "nov"), lowest=("jan", "apr"), spring=("sep", "oct"), autumn=("mar", "apr"), above_du=40.0)
+
+
+@pytest.mark.parametrize("latitude, cycle", [(lat, NORTH) for lat in (45.0, 55.0, 65.0, 75.0, 85.0)]
+                         + [(lat, SOUTH) for lat in (-35.0, -45.0, -55.0)])
+def test_spring_maximum_and_autumn_minimum(latitude, cycle):
     column = OZONE[:, band(latitude)]
-    assert MONTHS["feb"] <= int(np.argmax(column)) <= MONTHS["may"]
-    assert MONTHS["aug"] <= int(np.argmin(column)) <= MONTHS["nov"]
-    spring = column[[MONTHS["mar"], MONTHS["apr"]]].mean()
-    autumn = column[[MONTHS["sep"], MONTHS["oct"]]].mean()
-    assert spring - autumn > 50.0
+    assert MONTHS[cycle["highest"][0]] <= int(np.argmax(column)) <= MONTHS[cycle["highest"][1]]
+    assert MONTHS[cycle["lowest"][0]] <= int(np.argmin(column)) <= MONTHS[cycle["lowest"][1]]
+    spring = column[[MONTHS[month] for month in cycle["spring"]]].mean()
+    autumn = column[[MONTHS[month] for month in cycle["autumn"]]].mean()
+    assert spring - autumn > cycle["above_du"]
 
 
 def test_arctic_spring_maximum_above_400_du():
     # The Arctic zonal mean peaks above 400 DU in March-April (WMO 2018, from memory).
     assert OZONE[[MONTHS["mar"], MONTHS["apr"]], band(85)].min() > 400.0
-
-
-@pytest.mark.parametrize("latitude", [-35.0, -45.0, -55.0])
-def test_southern_midlatitude_spring_maximum(latitude):
-    # Southern mid-latitudes peak in their spring, September-November, and are lowest
-    # in late summer-autumn, February-April (WMO 2018 assessment, from memory; Parson's
-    # FAQ table: Aspendale 38 S October 360 vs April 280 DU). Accept: highest month in
-    # August-November, lowest in January-April, spring above autumn by 40 DU.
-    column = OZONE[:, band(latitude)]
-    assert MONTHS["aug"] <= int(np.argmax(column)) <= MONTHS["nov"]
-    assert MONTHS["jan"] <= int(np.argmin(column)) <= MONTHS["apr"]
-    spring = column[[MONTHS["sep"], MONTHS["oct"]]].mean()
-    autumn = column[[MONTHS["mar"], MONTHS["apr"]]].mean()
-    assert spring - autumn > 40.0
 
 
 def test_antarctic_spring_depletion_below_220_du():

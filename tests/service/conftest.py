@@ -195,13 +195,9 @@ def wait_until_answers(url: str, process: subprocess.Popen, timeout_s: float = 3
 
 
 def stop(process: subprocess.Popen) -> None:
-    if process.poll() is None:
-        process.terminate()
-        try:
-            process.wait(timeout=15)
-        except subprocess.TimeoutExpired:
-            process.kill()
-            process.wait()
+    from uvdose.service.job_cluster import stop_process
+
+    stop_process(process, grace_s=15.0)
 
 
 @contextlib.contextmanager

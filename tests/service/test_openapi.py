@@ -138,18 +138,25 @@ _DOCUMENTED_REFUSALS = {
 
 
 @pytest.fixture
-def all_checks_schema():
+def all_checks_schema(dask_scheduler, tmp_path):
+    # The jobs operations run too: each accepted submission a real job on a real local Dask
+    # cluster, its body under the ...ForJobs schemas (any number of records within the
+    # body's size); the status and results paths answer an unknown job with a documented 404.
+    from uvdose.service import jobs
     from uvdose.service.app import create_app
 
-    app = create_app({"TESTING": True, "UVDOSE_MAX_RECORDS": 3, "UVDOSE_CACHE": "off"})
+    app = create_app({"TESTING": True, "UVDOSE_MAX_RECORDS": 3, "UVDOSE_CACHE": "off",
+                      "UVDOSE_DASK_SCHEDULER": dask_scheduler, "UVDOSE_JOBS_STORE": str(tmp_path / "store"),
+                      "REDIS_URL": None, "UVDOSE_JOBS_METADATA_DIR": str(tmp_path / "metadata"),
+                      "UVDOSE_REQUEST_LOG": False})
     config = SchemathesisConfig.from_dict({
         "phases": {"coverage": {"enabled": False}}, "seed": 20261202,
         "headers": {"Accept-Encoding": "identity"}, **_DOCUMENTED_REFUSALS})
-    # The jobs operations have their own run below, on a Dask cluster.
-    return schemathesis.openapi.from_wsgi("/openapi.yaml", app, config=config)
+    yield schemathesis.openapi.from_wsgi("/openapi.yaml", app, config=config)
+    app.extensions[jobs.EXTENSION].close()
 
 
-all_checks = schemathesis.pytest.from_fixture("all_checks_schema").exclude(path_regex="^/v1/jobs")
+all_checks = schemathesis.pytest.from_fixture("all_checks_schema")
 
 
 @pytest.mark.slow
@@ -158,32 +165,4 @@ all_checks = schemathesis.pytest.from_fixture("all_checks_schema").exclude(path_
 def test_generated_requests_pass_every_schemathesis_check(case):
     # Every built-in check (as `schemathesis run --checks all`): valid data accepted,
     # invalid data refused, statuses, media types, headers and bodies as documented.
-    case.call_and_validate()
-
-
-@pytest.fixture
-def jobs_all_checks_schema(dask_scheduler, tmp_path):
-    from uvdose.service import jobs
-    from uvdose.service.app import create_app
-
-    app = create_app({"TESTING": True, "UVDOSE_CACHE": "off", "UVDOSE_DASK_SCHEDULER": dask_scheduler,
-                      "UVDOSE_JOBS_STORE": str(tmp_path / "store"), "REDIS_URL": None,
-                      "UVDOSE_JOBS_METADATA_DIR": str(tmp_path / "metadata"), "UVDOSE_REQUEST_LOG": False})
-    config = SchemathesisConfig.from_dict({
-        "phases": {"coverage": {"enabled": False}}, "seed": 20261203,
-        "headers": {"Accept-Encoding": "identity"}, **_DOCUMENTED_REFUSALS})
-    yield schemathesis.openapi.from_wsgi("/openapi.yaml", app, config=config)
-    app.extensions[jobs.EXTENSION].close()
-
-
-jobs_all_checks = schemathesis.pytest.from_fixture("jobs_all_checks_schema").include(path_regex="^/v1/jobs")
-
-
-@pytest.mark.slow
-@jobs_all_checks.parametrize()
-@settings(max_examples=30, deadline=None, suppress_health_check=list(HealthCheck))
-def test_generated_job_requests_pass_every_schemathesis_check(case):
-    # The same checks on the jobs operations, each accepted submission a real job on a real
-    # local Dask cluster: their bodies take any number of records (the ...ForJobs schemas),
-    # the status and results paths answer a job that is not known with a documented 404.
     case.call_and_validate()
