@@ -6,7 +6,10 @@ or a Parquet file of records (turned into the same CSV body). At submission the 
 goes through the endpoint's own reader (its record and option schemas and the shared column
 checks, :mod:`service.wire_formats`), so every bad record is named in the endpoint's own 422
 problem; the endpoint itself then answers a one-record probe, which catches what it checks
-beyond the schemas (a season's length, the ``daily`` and ``weather`` tables).
+beyond the schemas (a season's length, a window's); the windows and fields endpoints also
+read and check the whole body, its ``daily`` and ``weather`` tables included, with nothing
+computed, so a bad window or table entry of any record is named at submission as the
+synchronous endpoint names it.
 
 Each part is a body of the same kind holding a run of the records (the options as sent; the
 ``daily`` and ``weather`` tables cut to that run's entries and re-indexed), sized by the work
@@ -45,6 +48,7 @@ class Operation:
     tables: tuple[str, ...] = ()  # options holding column tables keyed by record index
     table_index: str = "field"
     takes_csv: bool = True
+    checks_inputs_whole: bool = False  # its endpoint can read and check a whole body, computing nothing
 
     def check(self, data: bytes, media_type: str, query: Mapping[str, str]) -> int:
         """The number of records, after the endpoint's reader has read the whole batch;
@@ -74,9 +78,9 @@ OPERATIONS: dict[str, Operation] = {op.name: op for op in (
               irradiance_batch.IrradianceOptionsSchema()),
     Operation("ozone", "/v1/ozone", "records", routes_ozone.OzoneRecordSchema(), routes_ozone.OzoneOptionsSchema()),
     Operation("windows", routes_doses.WINDOWS_ROUTE, "records", routes_doses.WindowRecordSchema(),
-              routes_doses.WindowOptionsSchema(), tables=("weather",), table_index="window"),
+              routes_doses.WindowOptionsSchema(), tables=("weather",), table_index="window", checks_inputs_whole=True),
     Operation("fields", routes_doses.FIELDS_ROUTE, "records", routes_doses.FieldRecordSchema(),
-              routes_doses.FieldOptionsSchema(), tables=("daily", "weather"), table_index="field"),
+              routes_doses.FieldOptionsSchema(), tables=("daily", "weather"), table_index="field", checks_inputs_whole=True),
     Operation("routes", routes_doses.ROUTES_ROUTE, "routes", takes_csv=False),
 )}
 """Every batch operation by the name ``POST /v1/jobs?operation=`` and ``uvdose batch`` take."""
@@ -227,11 +231,12 @@ def parquet_as_csv(data: bytes) -> bytes:
 
 
 def read_submission(operation: Operation, data: bytes, media_type: str, query: Mapping[str, str],
-                    probe: Callable[[Operation, str, Mapping[str, str], "PartBody"], None]) -> Submission:
+                    probe: Callable[..., None]) -> Submission:
     """The checked submission of ``data``; raises the endpoint's problem for a bad one.
 
-    ``probe(operation, media_type, query, part)`` runs the endpoint on a one-record
-    :class:`PartBody` and raises its problem, named as the whole submission, if it refuses it."""
+    ``probe(operation, media_type, query, part, inputs_only=False)`` runs the endpoint on a
+    :class:`PartBody` (one record; or, ``inputs_only``, the whole body, only read and checked)
+    and raises its problem, named as the whole submission, if it refuses it."""
     if media_type == PARQUET_MEDIA_TYPE:
         data, media_type = parquet_as_csv(data), CSV_MEDIA_TYPE
     if media_type == CSV_MEDIA_TYPE and not operation.takes_csv:
@@ -244,4 +249,8 @@ def read_submission(operation: Operation, data: bytes, media_type: str, query: M
     else:
         submission = Submission(operation, JSON_MEDIA_TYPE, {}, orjson.loads(data), None, records)
     probe(operation, submission.media_type, submission.query, submission.part(0, 1))
+    if operation.checks_inputs_whole:
+        # The whole body by the endpoint's own checks, computing nothing: a bad window or
+        # table entry of any part is named now (entries by their place in the table as sent).
+        probe(operation, submission.media_type, submission.query, PartBody(data, {}), inputs_only=True)
     return submission

@@ -43,11 +43,16 @@ def endpoint_app(factory: Callable[..., Flask]) -> Flask:
         return _APPS[factory]
 
 
-def answer(factory: Callable[..., Flask], path: str, media_type: str, query: Mapping[str, str], body: bytes):
-    """The endpoint's answer to ``body`` (a Flask test response)."""
+def answer(factory: Callable[..., Flask], path: str, media_type: str, query: Mapping[str, str], body: bytes,
+           inputs_only: bool = False):
+    """The endpoint's answer to ``body`` (a Flask test response); with ``inputs_only``, the
+    windows or fields endpoint only reads and checks the body (204, or its problem)."""
+    from uvdose.service.routes_doses import INPUTS_ONLY_ENVIRON
+
     client = endpoint_app(factory).test_client()
     return client.post(path, data=body, content_type=media_type, query_string=dict(query),
-                       headers={"Accept": "application/json", "Accept-Encoding": "identity"})
+                       headers={"Accept": "application/json", "Accept-Encoding": "identity"},
+                       environ_overrides={INPUTS_ONLY_ENVIRON: True} if inputs_only else None)
 
 
 def answer_rows(answer_body: dict[str, Any]) -> list[dict[str, Any]]:

@@ -138,10 +138,10 @@ class Jobs:
         return self.status(job_id, resume=False)
 
     def _probe(self, operation: job_operations.Operation, media_type: str, query: Mapping[str, str],
-               part: job_operations.PartBody) -> None:
+               part: job_operations.PartBody, inputs_only: bool = False) -> None:
         """Raise the endpoint's problem, named as the whole submission, if it refuses ``part``."""
-        response = job_parts.answer(self.factory, operation.path, media_type, query, part.body)
-        if response.status_code != 200:
+        response = job_parts.answer(self.factory, operation.path, media_type, query, part.body, inputs_only)
+        if response.status_code not in (200, 204):
             problem = job_operations.batch_wide(response.get_json(), 0, part.table_positions)
             if not problem["type"].startswith(TYPE_PREFIX):
                 raise RuntimeError(f"the {operation.name} endpoint answered the probe with {response.status_code}")

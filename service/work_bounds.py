@@ -131,7 +131,7 @@ def check_answer(kind: str, estimate: int, streamed: bool, limits: Limits) -> No
             f"{limits.max_streamed_answer_bytes} bytes,")
     raise Problem(413, "answer-too-large", "The answer would be larger than one request may give",
                   f"The answer would be about {estimate} bytes; a {'streamed' if streamed else 'whole JSON'} "
-                  f"answer may be at most {limit} bytes ({setting}).{hint} Submit it as a job "
+                  f"answer may be at most {limit} bytes ({setting}).{hint} {'submit' if hint else 'Submit'} it as a job "
                   f"(POST {jobs_url(kind)}, the same body), or split it.",
                   extensions={"quantity": "answer_bytes", "asked": int(estimate), "limit": int(limit),
                               "setting": setting, "jobs": jobs_url(kind)})

@@ -11,8 +11,8 @@ Scenario (invented): 2 740 fields spread over 55 S-65 N for the whole of 2026 (2
   (``ru_maxrss``).
 * The baseline, in this process: ``POST /v1/doses/fields`` through the Flask test client,
   in pieces of the job's part size (the size one request may carry under the synchronous
-  limits), one after the other, on one core: the same records, the same work, the same
-  rows serialised.
+  limits), one after the other, on one core, each answer streamed as NDJSON: the same
+  records, the same work, the same rows serialised.
 
 Targets: 2 workers >= 1.7x one worker; peak RSS per worker < 1 GiB; job throughput >= 0.8x
 the synchronous endpoint's. The machine has 2 shared cores: run under
@@ -53,7 +53,10 @@ def synchronous(body: dict, fields_per_request: int) -> float:
     started = time.perf_counter()
     for first in range(0, len(records), fields_per_request):
         piece = {**body, "records": records[first:first + fields_per_request]}
-        answer = client.post("/v1/doses/fields", data=orjson.dumps(piece), content_type="application/json")
+        # Streamed NDJSON, the job's own row format (a piece's whole JSON answer, ~46 MB,
+        # is over UVDOSE_MAX_ANSWER_BYTES).
+        answer = client.post("/v1/doses/fields", data=orjson.dumps(piece), content_type="application/json",
+                             headers={"Accept": "application/x-ndjson"})
         assert answer.status_code == 200, answer.get_data(as_text=True)[:500]
         answer.get_data()
     return time.perf_counter() - started

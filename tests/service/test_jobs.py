@@ -214,21 +214,47 @@ def _daily_body(bad_field: int) -> dict:
 
 
 @pytest.mark.parametrize("bad_field", [0, 4])
-def test_a_bad_daily_entry_is_named_by_its_place_in_the_submitted_table(make_jobs_app, bad_field):
-    # Each part holds one field and its entries, re-indexed; the error still names entry 5
-    # of the table as sent, as the synchronous endpoint does: through the submission's probe
-    # (field 0, a 422 at once) or from a later part (field 4, the job fails with it).
+def test_a_bad_daily_entry_is_named_at_submission_by_its_place_in_the_submitted_table(make_jobs_app, tmp_path,
+                                                                                       bad_field):
+    # Each part would hold one field and its entries, re-indexed; the submission's check
+    # reads the tables whole, so the error names entry 5 of the table as sent, as the
+    # synchronous endpoint does, whether the entry is the first part's (field 0) or a later
+    # one's (field 4), and nothing is stored.
     app, client = make_jobs_app(UVDOSE_JOB_PART_WORK=3)
     body = _daily_body(bad_field)
     synchronous = client.post(SYNC_PATHS["fields"], json=body).get_json()
     assert [e["field"] for e in synchronous["errors"]] == ["daily.ozone_du[5]"]
     submitted = client.post("/v1/jobs/fields", json=body)
-    if bad_field == 0:
-        assert submitted.status_code == 422 and submitted.get_json()["errors"] == synchronous["errors"]
-        return
-    assert submitted.status_code == 202
-    status = wait_for(client, submitted.get_json()["id"])
-    assert status["state"] == "failed" and status["problem"]["errors"] == synchronous["errors"]
+    assert submitted.status_code == 422 and submitted.get_json()["errors"] == synchronous["errors"]
+    assert not (tmp_path / "store").exists() or not any((tmp_path / "store").iterdir())
+
+
+def test_a_bad_window_of_a_later_part_is_named_at_submission(make_jobs_app, tmp_path):
+    # Window 3 lasts 40 days (at most 31): a check of the endpoint beyond the schemas, which
+    # the one-record probe (window 0) cannot see; the whole-body check names it at once.
+    app, client = make_jobs_app(UVDOSE_JOB_PART_WORK=1)
+    windows = [{"id": f"crew-{i}", "start": "2026-06-01T06:00:00Z", "end": "2026-06-01T12:00:00Z",
+                "lat": 44.05, "lon": 4.92} for i in range(4)]
+    windows[3]["end"] = "2026-07-11T06:00:00Z"
+    body = {"records": windows}
+    synchronous = client.post(SYNC_PATHS["windows"], json=body).get_json()
+    assert [(e["index"], e["field"]) for e in synchronous["errors"]] == [(3, "end")]
+    submitted = client.post("/v1/jobs/windows", json=body)
+    assert submitted.status_code == 422 and submitted.get_json()["errors"] == synchronous["errors"]
+    assert not (tmp_path / "store").exists() or not any((tmp_path / "store").iterdir())
+
+
+def test_a_parts_table_entries_are_renamed_by_their_place_in_the_submitted_table():
+    # A part's problem (an error found only when the part runs) is renamed as the whole
+    # submission: records from the part's first, table entries by their kept positions.
+    from uvdose.service.job_operations import batch_wide
+
+    problem = {"errors": [{"index": 1, "id": "plot-4", "field": "weather.ghi_w_m2[2]", "reason": "r"},
+                          {"index": None, "id": None, "field": "daily.ozone_du[0]", "reason": "r"},
+                          {"index": 0, "id": "plot-3", "field": "lat", "reason": "r"}]}
+    named = batch_wide(problem, 3, {"daily": [5, 9], "weather": [40, 41, 57]})
+    assert [(e["index"], e["field"]) for e in named["errors"]] == [
+        (4, "weather.ghi_w_m2[57]"), (None, "daily.ozone_du[5]"), (3, "lat")]
 
 
 def test_a_second_app_instance_reads_the_job(make_jobs_app):
