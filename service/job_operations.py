@@ -6,10 +6,10 @@ or a Parquet file of records (turned into the same CSV body). At submission the 
 goes through the endpoint's own reader (its record and option schemas and the shared column
 checks, :mod:`service.wire_formats`), so every bad record is named in the endpoint's own 422
 problem; the endpoint itself then answers a one-record probe, which catches what it checks
-beyond the schemas (a season's length, a window's); the windows and fields endpoints also
-read and check the whole body, its ``daily`` and ``weather`` tables included, with nothing
-computed, so a bad window or table entry of any record is named at submission as the
-synchronous endpoint names it.
+beyond the schemas (a season's length, a window's); the irradiance, windows and fields
+endpoints also read and check the whole body (measured irradiances, windows, the ``daily``
+and ``weather`` tables) with nothing computed, so a bad value of any record is named at
+submission as the synchronous endpoint names it.
 
 Each part is a body of the same kind holding a run of the records (the options as sent; the
 ``daily`` and ``weather`` tables cut to that run's entries and re-indexed), sized by the work
@@ -48,7 +48,8 @@ class Operation:
     tables: tuple[str, ...] = ()  # options holding column tables keyed by record index
     table_index: str = "field"
     takes_csv: bool = True
-    checks_inputs_whole: bool = False  # its endpoint can read and check a whole body, computing nothing
+    checks_inputs_whole: bool = False  # its endpoint checks a whole body computing nothing (wire_formats.inputs_only)
+    streams_rows: bool = False  # its endpoint streams NDJSON rows (the dose endpoints, service/dose_answers.py)
 
     def check(self, data: bytes, media_type: str, query: Mapping[str, str]) -> int:
         """The number of records, after the endpoint's reader has read the whole batch;
@@ -75,13 +76,15 @@ def _check_routes(data: bytes, media_type: str) -> int:
 
 OPERATIONS: dict[str, Operation] = {op.name: op for op in (
     Operation("irradiance", "/v1/irradiance", "records", irradiance_batch.IrradianceRecordSchema(),
-              irradiance_batch.IrradianceOptionsSchema()),
+              irradiance_batch.IrradianceOptionsSchema(), checks_inputs_whole=True),
     Operation("ozone", "/v1/ozone", "records", routes_ozone.OzoneRecordSchema(), routes_ozone.OzoneOptionsSchema()),
     Operation("windows", routes_doses.WINDOWS_ROUTE, "records", routes_doses.WindowRecordSchema(),
-              routes_doses.WindowOptionsSchema(), tables=("weather",), table_index="window", checks_inputs_whole=True),
+              routes_doses.WindowOptionsSchema(), tables=("weather",), table_index="window", checks_inputs_whole=True,
+              streams_rows=True),
     Operation("fields", routes_doses.FIELDS_ROUTE, "records", routes_doses.FieldRecordSchema(),
-              routes_doses.FieldOptionsSchema(), tables=("daily", "weather"), table_index="field", checks_inputs_whole=True),
-    Operation("routes", routes_doses.ROUTES_ROUTE, "routes", takes_csv=False),
+              routes_doses.FieldOptionsSchema(), tables=("daily", "weather"), table_index="field", checks_inputs_whole=True,
+              streams_rows=True),
+    Operation("routes", routes_doses.ROUTES_ROUTE, "routes", takes_csv=False, streams_rows=True),
 )}
 """Every batch operation by the name ``POST /v1/jobs?operation=`` and ``uvdose batch`` take."""
 

@@ -81,6 +81,7 @@ from uvdose.service.weather_series_table import (
 )
 from uvdose.service.wire_formats import (
     given_columns,
+    inputs_only,
     load_options,
     negotiate,
     read_endpoint_batch,
@@ -91,15 +92,6 @@ from uvdose.service.wire_formats import (
 )
 
 blueprint = Blueprint("doses", __name__)
-
-INPUTS_ONLY_ENVIRON = "uvdose.inputs_only"
-"""A WSGI environ key no HTTP request can set: the jobs' submission check
-(service/job_operations.py) sets it to have the windows or fields endpoint read and check a
-whole body, its tables included, and answer 204 before anything is computed."""
-
-
-def _inputs_only() -> bool:
-    return bool(request.environ.get(INPUTS_ONLY_ENVIRON))
 
 WINDOWS_ROUTE = "/v1/doses/windows"
 FIELDS_ROUTE = "/v1/doses/fields"
@@ -323,7 +315,7 @@ def windows() -> Response:
     cols["cloud_source"] = np.broadcast_to(source, start.shape).copy()
     cols.pop("cloud_cover_fraction", None), cols.pop("cloud_cover_oktas", None)
     steps = _weather_steps(options, _WINDOW_WEATHER, batch.ids, cols)
-    if _inputs_only():
+    if inputs_only():
         return Response(status=204)
     spectra = list(options.get("spectra") or DEFAULT_WINDOW_SPECTRA)
     step_s = float(options.get("step_s") or dose.DEFAULT_WINDOW_STEP_S)
@@ -551,10 +543,10 @@ def field_doses() -> Response:
                         _id_bytes(batch.ids) * n_days, rows_per_record=n_days)
 
     # Without a daily table the work is known before the (fields × days) inputs are built.
-    bound = bounded(None) if options.get("daily") is None and not _inputs_only() else None
+    bound = bounded(None) if options.get("daily") is None and not inputs_only() else None
     ozone, cmf, cloud_source = _daily_inputs(options.get("daily"), len(batch), first, n_days)
     steps = _weather_steps(options, _FIELD_WEATHER, batch.ids, batch.columns)
-    if _inputs_only():
+    if inputs_only():
         return Response(status=204)
     media_type, parts = bound or bounded((ozone, cmf))
     evaluate = gateway.dose_evaluator(spectra, transmittance, label, "fields")

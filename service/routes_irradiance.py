@@ -11,7 +11,7 @@ from flask import Blueprint, Response
 
 from uvdose.service import engine_gateway, irradiance_batch, metrics
 from uvdose.service.negotiation import JSON_MEDIA_TYPE, produces
-from uvdose.service.wire_formats import CSV_MEDIA_TYPE, csv_response, json_response, read_endpoint_batch
+from uvdose.service.wire_formats import CSV_MEDIA_TYPE, csv_response, inputs_only, json_response, read_endpoint_batch
 
 ROUTE = "/v1/irradiance"
 
@@ -27,6 +27,9 @@ def irradiance() -> Response:
     media_type, batch_request = read_endpoint_batch(_RECORDS, _OPTIONS)
     batch, options = batch_request.batch, batch_request.options
     spectra = options.get("spectra") or engine_gateway.default_spectra()
+    if inputs_only():  # the measurements' plausibility is all it checks beyond the schemas
+        irradiance_batch.with_cloud_factor_from_measurement(batch.columns, batch.ids)
+        return Response(status=204)
     columns, wavelength_nm, spectrum = irradiance_batch.compute(
         engine_gateway.current(options.get("ozone_climatology")), batch.columns, batch.ids, spectra, options["include_spectrum"])
     metrics.count_records(ROUTE, len(batch))

@@ -103,6 +103,21 @@ def read_batch(
                             max_records=max_records)
 
 
+INPUTS_ONLY_ENVIRON = "uvdose.inputs_only"
+"""A WSGI environ key no HTTP request can set: the jobs' submission check
+(service/job_operations.py) sets it to have a batch endpoint read and check a whole body,
+its tables and what it checks beyond the schemas included, and answer 204 before anything
+is computed."""
+
+
+def inputs_only() -> bool:
+    """Whether the request being served asks only for its inputs to be checked (see
+    :data:`INPUTS_ONLY_ENVIRON`)."""
+    from flask import request
+
+    return bool(request.environ.get(INPUTS_ONLY_ENVIRON))
+
+
 def read_endpoint_batch(record_schema: Schema, options_schema: Schema) -> tuple[str, BatchRequest]:
     """(the answer's negotiated media type, the batch) of the batch endpoint's request being
     served: negotiated first (a 406 before the body is read), then read and validated whole,

@@ -244,6 +244,20 @@ def test_a_bad_window_of_a_later_part_is_named_at_submission(make_jobs_app, tmp_
     assert not (tmp_path / "store").exists() or not any((tmp_path / "store").iterdir())
 
 
+def test_an_implausible_measurement_of_a_later_part_is_named_at_submission(make_jobs_app):
+    # Record 4 gives a measured global irradiance of 1 400 W m-2 at 08:00 local time in June
+    # (well over 1.5 times the clear sky): the irradiance endpoint's own check, beyond the
+    # schemas, reached by the whole-body check rather than by the one-record probe.
+    app, client = make_jobs_app(UVDOSE_JOB_PART_WORK=2)
+    records = irradiance_records(6)
+    records[4] = {**records[4], "time": "2026-06-21T06:00:00Z", "measured_ghi_w_m2": 1400.0}
+    body = {"records": records}
+    synchronous = client.post(SYNC_PATHS["irradiance"], json=body).get_json()
+    assert [(e["index"], e["field"]) for e in synchronous["errors"]] == [(4, "measured_ghi_w_m2")]
+    submitted = client.post("/v1/jobs/irradiance", json=body)
+    assert submitted.status_code == 422 and submitted.get_json()["errors"] == synchronous["errors"]
+
+
 def test_a_parts_table_entries_are_renamed_by_their_place_in_the_submitted_table():
     # A part's problem (an error found only when the part runs) is renamed as the whole
     # submission: records from the part's first, table entries by their kept positions.
