@@ -1,6 +1,6 @@
 """Speed of the fast clear-sky path: client aerosol, a field season, the default path.
 
-    flock /work/bench.lock python tests/benchmarks/bench_fast_path.py [--fields 1000] [--days 183]
+    python tests/benchmarks/bench_fast_path.py [--fields 1000] [--days 183]
 
 Scenario (invented, our own): the daytime van positions of ``bench_engine.py`` (mid-
 latitudes over a year, ozone given), and a farm cooperative's fields with their own

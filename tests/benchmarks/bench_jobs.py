@@ -15,8 +15,8 @@ Scenario (invented): 2 740 fields spread over 55 S-65 N for the whole of 2026 (2
   records, the same work, the same rows serialised.
 
 Targets: 2 workers >= 1.7x one worker; peak RSS per worker < 1 GiB; job throughput >= 0.8x
-the synchronous endpoint's. The machine has 2 shared cores: run under
-``flock /work/bench.lock python tests/benchmarks/bench_jobs.py [--fields N] [--days N]``.
+the synchronous endpoint's. The machine has 2 shared cores: run it with nothing else running,
+``python tests/benchmarks/bench_jobs.py [--fields N] [--days N]``.
 """
 from __future__ import annotations
 

@@ -1,7 +1,7 @@
 """What reading JSON bodies strictly costs: ``service.json_body.parse_json_body`` against
 orjson and the standard library's parser (a script; pytest does not collect it).
 
-    flock /work/bench.lock python tests/benchmarks/bench_json_body.py [--points 190000] [--repeats 5]
+    python tests/benchmarks/bench_json_body.py [--points 190000] [--repeats 5]
 
 Scenario (invented, our own): a fleet operator sends a day of its vans' fixes, 100 points
 per route, to ``POST /v1/doses/routes`` in one body near the 16 MiB body limit.

@@ -2,7 +2,7 @@
 drawing the same picture (a day's UV Index with five category bands, axes, labels and a
 four-line caption), and the whole ``GET /v1/pictures/uv-index-day`` in process.
 
-    flock /work/bench.lock python tests/benchmarks/bench_pictures.py
+    python tests/benchmarks/bench_pictures.py
 
 matplotlib is not a dependency of the service; install it to run the comparison
 (``pip install matplotlib``), else that line is skipped. Ratios against the hand-written

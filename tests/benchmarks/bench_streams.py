@@ -9,7 +9,7 @@ byte of the body, the time to the last, the bytes, and the worker's peak residen
 (``VmHWM``) above what it held after a small warm-up request. Ratios are against the whole
 JSON answer of the same run.
 
-Run: ``flock /work/bench.lock python tests/benchmarks/bench_streams.py`` (2 shared cores:
+Run: ``python tests/benchmarks/bench_streams.py`` (2 shared cores:
 take the lock so that two benchmarks do not overlap).
 """
 from __future__ import annotations

@@ -14,7 +14,7 @@ erythema; the default Gauss–Legendre days):
 Both runs in the same process; the ratio is the figure to read (target: series at most
 1.5× the daily values' time). The series run also reports its preparation alone (the
 readings to steps) and its engine samples, which should equal the baseline's.
-Run: flock /work/bench.lock python tests/benchmarks/bench_weather_series.py [--fields N] [--days D]
+Run: python tests/benchmarks/bench_weather_series.py [--fields N] [--days D]
 """
 import argparse
 import resource

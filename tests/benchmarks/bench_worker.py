@@ -1,6 +1,6 @@
 """The buffering worker against gunicorn's gthread: what buffering costs, what slow clients do.
 
-    flock /work/bench.lock python tests/benchmarks/bench_worker.py
+    python tests/benchmarks/bench_worker.py
 
 Both servers run deploy/gunicorn.conf.py (2 workers x 4 threads, cache off); the gthread
 one only overrides the worker class on the command line. Per server: the median of 200
