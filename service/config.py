@@ -1,13 +1,14 @@
 """Every setting of the service, in one table, and the one place they are parsed.
 
 The table is ``service/settings.yaml`` (variable, config key, default, parser, meaning);
-the parsers are here. :data:`SETTINGS` are the app's: :func:`settings_from_environment` reads them from the
-environment (and from the ``config`` given to ``create_app``, under the same keys) into
-``app.config``, where the parts that use them read them (limits, cache, ozone grids, API
-keys, request log). :data:`SERVER_SETTINGS` are the server's: ``deploy/gunicorn.conf.py``
-and ``uvdose serve`` read them through :func:`server_settings_from_environment`, since
-gunicorn takes them before any app exists. The README's "Configuration" section lists
-exactly these variables (a test holds the two in step).
+the parsers are here. :data:`SETTINGS` are the app's: :func:`settings_from_environment`
+reads them from the environment (and from the ``config`` given to ``create_app``, under
+the same keys) into ``app.config``, where the parts that use them read them (limits,
+cache, ozone grids, API keys, request log). :data:`SERVER_SETTINGS` are the server's:
+``deploy/gunicorn.conf.py`` and ``uvdose serve`` read them through
+:func:`server_settings_from_environment`, since gunicorn takes them before any app exists.
+The README's "Configuration" section lists exactly these variables (a test holds the two
+in step).
 
 Every setting has an embedded default, so ``uvdose serve`` runs with no environment at
 all. A variable set to the empty string counts as unset. A value that cannot be used

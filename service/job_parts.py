@@ -23,6 +23,7 @@ from uvdose.service.answer_streams import ndjson_lines
 from uvdose.service.job_operations import OPERATIONS, batch_wide
 from uvdose.service.job_store import JobStore
 from uvdose.service.negotiation import JSON_MEDIA_TYPE, NDJSON_MEDIA_TYPE
+from uvdose.service.wire_formats import INPUTS_ONLY_ENVIRON
 
 _APPS: dict[Callable[..., Flask], Flask] = {}
 _APP_LOCK = threading.Lock()
@@ -51,8 +52,6 @@ def answer(factory: Callable[..., Flask], path: str, media_type: str, query: Map
            inputs_only: bool = False, accept: str = JSON_MEDIA_TYPE):
     """The endpoint's answer to ``body`` (a Flask test response) in ``accept``; with
     ``inputs_only``, the endpoint only reads and checks the body (204, or its problem)."""
-    from uvdose.service.wire_formats import INPUTS_ONLY_ENVIRON
-
     client = endpoint_app(factory).test_client()
     return client.post(path, data=body, content_type=media_type, query_string=dict(query),
                        headers={"Accept": accept, "Accept-Encoding": "identity"},

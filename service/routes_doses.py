@@ -315,13 +315,13 @@ def windows() -> Response:
     cols["cloud_source"] = np.broadcast_to(source, start.shape).copy()
     cols.pop("cloud_cover_fraction", None), cols.pop("cloud_cover_oktas", None)
     steps = _weather_steps(options, _WINDOW_WEATHER, batch.ids, cols)
-    if inputs_only():
-        return Response(status=204)
     spectra = list(options.get("spectra") or DEFAULT_WINDOW_SPECTRA)
     step_s = float(options.get("step_s") or dose.DEFAULT_WINDOW_STEP_S)
     transmittance, label = _transmittance(options)
     work = dose.trapezoid_node_counts(start, end, step_s) * len(spectra)
     media_type, parts = _bounded("windows", work, batch.ids, len(batch), len(spectra), _id_bytes(batch.ids))
+    if inputs_only():  # every check done, nothing computed
+        return Response(status=204)
     evaluate = engine_gateway.current(options.get("ozone_climatology")).dose_evaluator(spectra, transmittance, label, "windows")
     name = by_schema(_WINDOW_RECORDS, batch.ids)
 
@@ -543,12 +543,12 @@ def field_doses() -> Response:
                         _id_bytes(batch.ids) * n_days, rows_per_record=n_days)
 
     # Without a daily table the work is known before the (fields × days) inputs are built.
-    bound = bounded(None) if options.get("daily") is None and not inputs_only() else None
+    bound = bounded(None) if options.get("daily") is None else None
     ozone, cmf, cloud_source = _daily_inputs(options.get("daily"), len(batch), first, n_days)
-    steps = _weather_steps(options, _FIELD_WEATHER, batch.ids, batch.columns)
-    if inputs_only():
-        return Response(status=204)
     media_type, parts = bound or bounded((ozone, cmf))
+    steps = _weather_steps(options, _FIELD_WEATHER, batch.ids, batch.columns)
+    if inputs_only():  # every check done, nothing computed
+        return Response(status=204)
     evaluate = gateway.dose_evaluator(spectra, transmittance, label, "fields")
     dates = [str(d) for d in first + np.arange(n_days)]
 
